@@ -1,0 +1,38 @@
+"""prunebench: evidence for how decision trees are grown and pruned by default.
+
+The pruning engine (:mod:`prunebench.pruning`), the CV choice of alpha
+(:mod:`prunebench.selection`) and the estimators built on them
+(:mod:`prunebench.estimators`) are re-exported here.
+"""
+
+from .estimators import PrunedTreeClassifier, PrunedTreeRegressor
+from .exceptions import InvalidParameterError, PrunebenchError
+from .pruning import PRUNE_RISKS, PruningPath, cart_candidates, pruning_path
+from .selection import (
+    AlphaSelection,
+    MinimumRule,
+    SelectionRule,
+    StandardErrorRule,
+    parse_rule,
+    select_alpha,
+)
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "PRUNE_RISKS",
+    "AlphaSelection",
+    "InvalidParameterError",
+    "MinimumRule",
+    "PrunebenchError",
+    "PrunedTreeClassifier",
+    "PrunedTreeRegressor",
+    "PruningPath",
+    "SelectionRule",
+    "StandardErrorRule",
+    "__version__",
+    "cart_candidates",
+    "parse_rule",
+    "pruning_path",
+    "select_alpha",
+]

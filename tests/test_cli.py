@@ -1,0 +1,50 @@
+"""Tests of the command line (prunebench.cli)."""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+from click.testing import CliRunner
+
+from prunebench.cli import main
+
+COMMANDS = sorted(main.commands)
+
+
+def test_top_level_help_lists_every_command():
+    result = CliRunner().invoke(main, ["--help"])
+    assert result.exit_code == 0
+    for name in COMMANDS:
+        assert re.search(rf"^\s+{name}\s", result.output, re.MULTILINE), name
+
+
+@pytest.mark.parametrize("name", COMMANDS)
+def test_every_command_has_help_text(name):
+    result = CliRunner().invoke(main, [name, "--help"])
+    assert result.exit_code == 0
+    assert main.commands[name].help, f"{name} has no docstring"
+    assert "Options:" in result.output and len(result.output.splitlines()) > 4
+
+
+@pytest.mark.parametrize("name", COMMANDS)
+def test_every_command_is_in_the_readme(name):
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    assert f"prunebench {name}" in readme
+
+
+def test_demo_prints_curve_and_chosen_alpha():
+    result = CliRunner().invoke(main, ["demo", "--dataset", "iris", "--cv", "5", "--rule", "min"])
+    assert result.exit_code == 0, result.output
+    lines = result.output.splitlines()
+    assert sum("<- chosen" in line for line in lines) == 1
+    assert re.search(r"rule min: alpha = [0-9.e-]+, \d+ leaves", result.output)
+
+
+def test_demo_bad_rule_is_one_line_and_exit_2():
+    result = CliRunner().invoke(main, ["demo", "--rule", "2sd"])
+    assert result.exit_code == 2
+    assert result.output.strip().count("\n") == 0
+    assert "'rule'" in result.output

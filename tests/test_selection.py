@@ -1,0 +1,109 @@
+"""Tests of the CV choice of alpha (prunebench.selection)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from sklearn.datasets import load_diabetes, make_classification
+from sklearn.model_selection import GridSearchCV, KFold, StratifiedKFold
+from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+
+from prunebench.exceptions import InvalidParameterError
+from prunebench.selection import (
+    MinimumRule,
+    StandardErrorRule,
+    parse_rule,
+    select_alpha,
+)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_curve_mean_equals_grid_search_classification(seed):
+    # scikit-learn as reference library: GridSearchCV refits one tree per
+    # candidate and fold; our curve scores every candidate from one fit per fold
+    X, y = make_classification(400, 8, n_informative=4, flip_y=0.15, random_state=seed)
+    tree = DecisionTreeClassifier(random_state=seed)
+    splitter = StratifiedKFold(5, shuffle=True, random_state=seed)
+    selection = select_alpha(tree, X, y, cv=splitter, risk="impurity", rules=["min", "1se"])
+    grid = GridSearchCV(tree, {"ccp_alpha": list(selection.candidates)}, cv=splitter).fit(X, y)
+    np.testing.assert_allclose(
+        selection.curve["mean"], 1 - grid.cv_results_["mean_test_score"], atol=1e-12
+    )
+    assert selection.n_fits == 6  # T_max and one tree per fold
+
+
+def test_curve_mean_equals_grid_search_regression():
+    X, y = load_diabetes(return_X_y=True)
+    tree = DecisionTreeRegressor(min_samples_leaf=5, random_state=0)
+    splitter = KFold(5, shuffle=True, random_state=0)
+    selection = select_alpha(tree, X, y, cv=splitter, risk="squared_error", rules=["min"])
+    grid = GridSearchCV(
+        tree,
+        {"ccp_alpha": list(selection.candidates)},
+        cv=splitter,
+        scoring="neg_mean_squared_error",
+    ).fit(X, y)
+    np.testing.assert_allclose(
+        selection.curve["mean"], -grid.cv_results_["mean_test_score"], rtol=1e-9
+    )
+    # the se is the fold standard deviation (ddof=1) over sqrt(K)
+    folds = -np.vstack([grid.cv_results_[f"split{i}_test_score"] for i in range(5)])
+    np.testing.assert_allclose(
+        selection.curve["se"], folds.std(axis=0, ddof=1) / np.sqrt(5), rtol=1e-9
+    )
+
+
+def test_curve_columns_and_leaf_counts():
+    X, y = make_classification(300, 5, flip_y=0.1, random_state=4)
+    selection = select_alpha(DecisionTreeClassifier(random_state=0), X, y, cv=4, risk="error")
+    curve = selection.curve
+    assert list(curve.columns) == ["alpha", "n_leaves", "mean", "se"]
+    assert curve["alpha"].is_monotonic_increasing
+    assert curve["n_leaves"].is_monotonic_decreasing
+    assert curve["n_leaves"].iloc[-1] == 1
+    assert selection.fold_losses.shape == (4, len(curve))
+    assert selection.fold_sizes.sum() == 300
+
+
+def test_hand_computed_curve_min_and_one_se_differ():
+    # by hand: the minimum is 0.20 at index 2 with se 0.03, so the 1-SE bound is
+    # 0.23; the largest alpha with mean <= 0.23 is index 3 (0.22); 0.5-SE's bound
+    # 0.215 admits only index 2
+    mean = np.array([0.30, 0.25, 0.20, 0.22, 0.24, 0.40])
+    se = np.array([0.05, 0.04, 0.03, 0.03, 0.02, 0.01])
+    assert MinimumRule().choose(mean, se) == 2
+    assert StandardErrorRule(1).choose(mean, se) == 3
+    assert StandardErrorRule(0.5).choose(mean, se) == 2
+    assert StandardErrorRule(4).choose(mean, se) == 4  # bound 0.32
+    assert StandardErrorRule(0).choose(mean, se) == MinimumRule().choose(mean, se)
+
+
+def test_ties_go_to_the_larger_alpha():
+    mean = np.array([0.2, 0.1, 0.3, 0.1, 0.5])
+    assert MinimumRule().choose(mean, np.zeros(5)) == 3
+    # sums in another order differ in the last bits; still a tie
+    assert MinimumRule().choose(np.array([0.3, 0.1 + 0.2, 0.5]), np.zeros(3)) == 1
+
+
+@pytest.mark.parametrize(
+    "spelling, name", [("min", "min"), ("1se", "1se"), ("0.5se", "0.5se"), ("2.0se", "2se")]
+)
+def test_parse_rule_spellings(spelling, name):
+    assert parse_rule(spelling).name == name
+
+
+@pytest.mark.parametrize("bad", ["max", "se", "-1se", "1 se", "1.se", 1, None])
+def test_parse_rule_refuses_bad_spellings(bad):
+    with pytest.raises(InvalidParameterError, match="The 'rule' parameter"):
+        parse_rule(bad)
+
+
+def test_rules_share_one_curve_and_one_se_picks_a_smaller_tree():
+    X, y = make_classification(1000, 10, n_informative=4, flip_y=0.2, random_state=1)
+    selection = select_alpha(
+        DecisionTreeClassifier(random_state=0), X, y, cv=10, risk="error", rules=["min", "1se"]
+    )
+    assert selection.n_fits == 11
+    assert selection.alpha("1se") >= selection.alpha("min")
+    leaves = selection.curve["n_leaves"].to_numpy()
+    assert leaves[selection.chosen["1se"]] <= leaves[selection.chosen["min"]]
