@@ -49,7 +49,9 @@ def _compare_with_sklearn(model_class, X, y, params):
     path = pruning_path(full, "impurity")
     # scikit-learn as reference library: its path repeats tied alphas one branch
     # at a time; the distinct values (up to rounding) must be ours
-    theirs = np.unique(merge_close(full.cost_complexity_pruning_path(X, y).ccp_alphas))
+    theirs = merge_close(full.cost_complexity_pruning_path(X, y).ccp_alphas)
+    # a split that gains nothing gets alpha 1e-16 or so there, from rounding; 0 here
+    theirs = np.unique(np.where(theirs <= 1e-12 * path.node_risk[0], 0.0, theirs))
     assert theirs.size == path.alphas.size
     np.testing.assert_allclose(theirs, path.alphas, rtol=1e-9, atol=1e-15)
     candidates = cart_candidates(path.alphas)
@@ -76,14 +78,18 @@ def _compare_with_sklearn(model_class, X, y, params):
         assert losses[j] == pytest.approx(expected, rel=1e-9, abs=1e-9)
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(
+    max_examples=150, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow]
+)
 @given(datasets(regression=False))
 def test_impurity_path_matches_sklearn_classification(data):
     X, y, params = data
     _compare_with_sklearn(DecisionTreeClassifier, X, y, params)
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(
+    max_examples=100, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow]
+)
 @given(datasets(regression=True))
 def test_impurity_path_matches_sklearn_regression(data):
     X, y, params = data
