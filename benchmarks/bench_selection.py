@@ -105,7 +105,9 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 5000, 20000])
     parser.add_argument(
-        "--grid-subset", type=int, default=25,
+        "--grid-subset",
+        type=int,
+        default=25,
         help="candidates GridSearchCV runs on when n > 5000 (scaled to the full count)",
     )
     parser.add_argument("--repeats", type=int, default=3, help="best-of repeats for (a), (c)")

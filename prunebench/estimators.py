@@ -108,9 +108,7 @@ class _PrunedTree(BaseEstimator):
 
     def _validated(self, X):
         check_is_fitted(self, "pruned_tree_")
-        return validate_data(
-            self, X, reset=False, dtype=np.float32, ensure_all_finite="allow-nan"
-        )
+        return validate_data(self, X, reset=False, dtype=np.float32, ensure_all_finite="allow-nan")
 
     def predict(self, X):
         """Predict with the pruned tree.

@@ -105,8 +105,11 @@ def node_risks(
         return (weight - class_weight.max(axis=1)) / total
     if X is None or y is None:
         raise parameter_error(
-            "X", "node_risks", "the training rows when a tree grown with "
-            f"criterion={estimator.criterion!r} is pruned by squared error", X
+            "X",
+            "node_risks",
+            "the training rows when a tree grown with "
+            f"criterion={estimator.criterion!r} is pruned by squared error",
+            X,
         )
     membership = estimator.decision_path(X).tocsc().T
     sw = np.ones(len(y)) if sample_weight is None else np.asarray(sample_weight, float)

@@ -112,8 +112,14 @@ def test_error_path_matches_brute_force(seed):
     # hand check by exhaustive search: the optimal subtree at alpha minimises
     # R(T) + alpha * |leaves(T)|, the smaller tree winning ties
     X, y = make_classification(
-        60, 4, n_informative=3, n_redundant=0, flip_y=0.25, n_classes=3,
-        n_clusters_per_class=1, random_state=seed,
+        60,
+        4,
+        n_informative=3,
+        n_redundant=0,
+        flip_y=0.25,
+        n_classes=3,
+        n_clusters_per_class=1,
+        random_state=seed,
     )
     full = DecisionTreeClassifier(max_leaf_nodes=6 + seed % 7, random_state=seed).fit(X, y)
     assert full.get_n_leaves() <= 12

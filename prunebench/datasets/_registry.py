@@ -1,0 +1,258 @@
+"""Registry of named data sets and their loading."""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import numpy as np
+
+from ..exceptions import PrunebenchError
+
+TASKS = ("binary", "multiclass", "regression")
+
+
+class DatasetError(PrunebenchError):
+    """A data set is unknown, or its data cannot be used."""
+
+    exit_code = 2
+
+
+@dataclass(frozen=True)
+class Dataset:
+    """A registered data set.
+
+    Attributes
+    ----------
+    name : str
+        The name studies use.
+    task : {"binary", "multiclass", "regression"}
+    loader : callable
+        ``loader(**params) -> (X, y)`` with numeric float X.
+    source, licence, citation : str
+        Where the data comes from, under which terms, and whom to cite.
+    params : dict
+        Default loader parameters (simulations: size and seed).
+    """
+
+    name: str
+    task: str
+    loader: Callable[..., tuple[np.ndarray, np.ndarray]]
+    source: str
+    licence: str
+    citation: str
+    params: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True, eq=False)
+class LoadedDataset:
+    """A data set's arrays with its identity.
+
+    Attributes
+    ----------
+    name : str
+    task : str
+    X : ndarray of shape (n_rows, n_features), float64
+    y : ndarray of shape (n_rows,)
+    params : dict
+        The loader parameters actually used.
+    fingerprint : str
+        Hex SHA-256 of X and y (see :func:`fingerprint`).
+    info : Dataset
+        The registry entry.
+    """
+
+    name: str
+    task: str
+    X: np.ndarray
+    y: np.ndarray
+    params: dict
+    fingerprint: str
+    info: Dataset
+
+    @property
+    def n_classes(self) -> int | None:
+        """Number of classes, or None for regression."""
+        return None if self.task == "regression" else int(np.unique(self.y).size)
+
+    @property
+    def smallest_class(self) -> int | None:
+        """Rows in the least populated class, or None for regression."""
+        if self.task == "regression":
+            return None
+        return int(np.unique(self.y, return_counts=True)[1].min())
+
+
+_REGISTRY: dict[str, Dataset] = {}
+
+
+def register(dataset: Dataset) -> Dataset:
+    """Add a data set to the registry (its name must be new).
+
+    Parameters
+    ----------
+    dataset : Dataset
+
+    Returns
+    -------
+    Dataset
+    """
+    if dataset.task not in TASKS:
+        raise DatasetError(f"dataset {dataset.name!r}: task must be one of {TASKS}")
+    if dataset.name in _REGISTRY:
+        raise DatasetError(f"dataset {dataset.name!r} is registered twice")
+    _REGISTRY[dataset.name] = dataset
+    return dataset
+
+
+def is_classification(task: str) -> bool:
+    """Whether a task is a classification task."""
+    return task != "regression"
+
+
+def list_datasets() -> list[Dataset]:
+    """Every registered data set, sorted by name."""
+    return [_REGISTRY[name] for name in sorted(_REGISTRY)]
+
+
+def get_dataset(name: str) -> Dataset:
+    """The registry entry of a name; :class:`DatasetError` naming it if unknown."""
+    try:
+        return _REGISTRY[name]
+    except KeyError:
+        raise DatasetError(
+            f"unknown dataset {name!r}; 'prunebench datasets' lists the known ones"
+        ) from None
+
+
+def fingerprint(X: np.ndarray, y: np.ndarray) -> str:
+    """Hex SHA-256 of a data set's shape, X (as float64) and y.
+
+    Parameters
+    ----------
+    X : ndarray
+    y : ndarray
+
+    Returns
+    -------
+    str
+    """
+    X = np.ascontiguousarray(X, dtype=np.float64)
+    h = hashlib.sha256()
+    h.update(repr(X.shape).encode())
+    h.update(X.tobytes())
+    y = np.asarray(y)
+    if y.dtype.kind in "fiub":
+        h.update(np.ascontiguousarray(y, dtype=np.float64).tobytes())
+    else:
+        h.update("\x1f".join(map(str, y.tolist())).encode())
+    return h.hexdigest()
+
+
+def load_dataset(name: str, **params) -> LoadedDataset:
+    """Load a registered data set by name.
+
+    Parameters
+    ----------
+    name : str
+    **params
+        Loader parameters overriding the entry's defaults.
+
+    Returns
+    -------
+    LoadedDataset
+    """
+    return _load_cached(name, tuple(sorted(params.items())))
+
+
+@lru_cache(maxsize=32)
+def _load_cached(name: str, items: tuple) -> LoadedDataset:
+    info = get_dataset(name)
+    unknown = set(dict(items)) - set(info.params)
+    if unknown:
+        raise DatasetError(
+            f"dataset {name!r} takes no parameter {sorted(unknown)[0]!r}"
+            + (f"; it takes {sorted(info.params)}" if info.params else "")
+        )
+    params = {**info.params, **dict(items)}
+    X, y = info.loader(**params)
+    X = np.ascontiguousarray(X, dtype=np.float64)
+    y = np.asarray(y)
+    if info.task == "regression":
+        y = y.astype(np.float64)
+    X.flags.writeable = False
+    y.flags.writeable = False
+    return LoadedDataset(
+        name=name,
+        task=info.task,
+        X=X,
+        y=y,
+        params=params,
+        fingerprint=fingerprint(X, y),
+        info=info,
+    )
+
+
+def _sklearn_loader(function_name: str):
+    def load():
+        import sklearn.datasets
+
+        return getattr(sklearn.datasets, function_name)(return_X_y=True)
+
+    load.__name__ = f"load_{function_name}"
+    return load
+
+
+_UCI = "UCI Machine Learning Repository, as bundled with scikit-learn"
+for _name, _task, _function, _citation in [
+    (
+        "iris",
+        "multiclass",
+        "load_iris",
+        "Fisher, R. A. (1936). The use of multiple measurements "
+        "in taxonomic problems. Annals of Eugenics 7(2), 179-188.",
+    ),
+    (
+        "wine",
+        "multiclass",
+        "load_wine",
+        "Forina, M. et al. (1988). PARVUS: an extendible package "
+        "for data exploration, classification and correlation. Via the UCI repository.",
+    ),
+    (
+        "breast_cancer",
+        "binary",
+        "load_breast_cancer",
+        "Street, W. N., Wolberg, W. H., Mangasarian, "
+        "O. L. (1993). Nuclear feature extraction for breast tumor diagnosis. SPIE 1905.",
+    ),
+    (
+        "digits",
+        "multiclass",
+        "load_digits",
+        "Alpaydin, E., Kaynak, C. (1998). Optical "
+        "Recognition of Handwritten Digits. UCI repository.",
+    ),
+    (
+        "diabetes",
+        "regression",
+        "load_diabetes",
+        "Efron, B., Hastie, T., Johnstone, I., "
+        "Tibshirani, R. (2004). Least angle regression. Annals of Statistics 32(2), 407-499.",
+    ),
+]:
+    register(
+        Dataset(
+            name=_name,
+            task=_task,
+            loader=_sklearn_loader(_function),
+            source=_UCI
+            if _name != "diabetes"
+            else "Efron et al. (2004), bundled with scikit-learn",
+            licence="bundled with scikit-learn (BSD-3-Clause distribution); original terms of the "
+            "source apply",
+            citation=_citation,
+        )
+    )

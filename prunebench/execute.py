@@ -1,0 +1,268 @@
+"""Running a study: trial groups on a local process pool, one writer, resumable.
+
+The sweep process is the only writer.  It records every trial as ``pending``,
+hands the unfinished groups to workers (or runs them itself with one worker),
+and stores each group's rows with its ``done`` status in one transaction as the
+group finishes, so a crash or a kill leaves only whole groups behind and the
+next run picks up where this one stopped.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+import traceback
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TextIO
+
+from .datasets import load_dataset
+from .evaluate import GroupResult, evaluate_group
+from .exceptions import PrunebenchError
+from .store import ResultStore, utc_now
+from .study import Study, TrialGroup
+
+__all__ = ["ConductSummary", "Progress", "conduct", "default_database"]
+
+
+class ConductError(PrunebenchError):
+    """A study cannot be conducted as asked."""
+
+    exit_code = 2
+
+
+def default_database(study: Study) -> Path:
+    """The study's own ``database``, or ``<study file stem>.sqlite`` beside it."""
+    if study.database is not None:
+        return study.database
+    if study.path is not None:
+        return study.path.with_suffix(".sqlite")
+    return Path(f"{study.name}.sqlite")
+
+
+@dataclass
+class ConductSummary:
+    """What one ``conduct`` run did.
+
+    Attributes
+    ----------
+    database : Path
+    total, done, failed, skipped : int
+        Trials in the study; finished by this run; failed in this run; already done.
+    groups_run : int
+    seconds : float
+    write_seconds : float
+        Time spent storing results.
+    n_fits : int
+        Trees grown by this run.
+    """
+
+    database: Path
+    total: int = 0
+    done: int = 0
+    failed: int = 0
+    skipped: int = 0
+    groups_run: int = 0
+    seconds: float = 0.0
+    write_seconds: float = 0.0
+    n_fits: int = 0
+    errors: list[str] = field(default_factory=list)
+
+
+class Progress:
+    """A progress line: trials done / total, rate and ETA, on a stream.
+
+    On a terminal the line is redrawn in place; elsewhere (a log file) a line is
+    written at most every ``every`` seconds and at the end.
+    """
+
+    def __init__(self, total: int, stream: TextIO | None = None, every: float = 10.0) -> None:
+        self.total = total
+        self.stream = stream if stream is not None else sys.stderr
+        self.every = every
+        self.done = 0
+        self.failed = 0
+        self.start = time.monotonic()
+        self._last = 0.0
+        self._tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+
+    def line(self) -> str:
+        """The current progress text."""
+        elapsed = time.monotonic() - self.start
+        finished = self.done + self.failed
+        rate = finished / elapsed * 60 if elapsed > 0 else 0.0
+        remaining = self.total - finished
+        eta = remaining / (finished / elapsed) if finished and elapsed > 0 else float("nan")
+        eta_text = "?" if eta != eta else _duration(eta)
+        failed = f", {self.failed} failed" if self.failed else ""
+        return (
+            f"trials {finished}/{self.total}{failed} | {rate:.1f} trials/min | "
+            f"elapsed {_duration(elapsed)} | ETA {eta_text}"
+        )
+
+    def update(self, done: int = 0, failed: int = 0) -> None:
+        """Count finished trials and redraw if due."""
+        self.done += done
+        self.failed += failed
+        now = time.monotonic()
+        if self._tty:
+            self.stream.write("\r" + self.line() + "\x1b[K")
+            self.stream.flush()
+        elif now - self._last >= self.every or self.done + self.failed >= self.total:
+            self.stream.write(self.line() + "\n")
+            self.stream.flush()
+            self._last = now
+
+    def close(self) -> None:
+        """End the line on a terminal."""
+        if self._tty:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def _duration(seconds: float) -> str:
+    seconds = int(round(seconds))
+    h, rest = divmod(seconds, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}h{m:02d}m" if h else f"{m}m{s:02d}s"
+
+
+@dataclass
+class _Task:
+    group: TrialGroup
+    dataset_name: str
+    dataset_params: dict
+    fingerprint: str
+    seed: int
+    repeats: int
+    folds: int
+
+
+@dataclass
+class _Outcome:
+    group: TrialGroup
+    result: GroupResult | None
+    error: str | None
+    started: str
+    finished: str
+    seconds: float
+
+
+def _run_task(task: _Task) -> _Outcome:
+    """Evaluate one group; any exception becomes the outcome's error text."""
+    started, t0 = utc_now(), time.perf_counter()
+    try:
+        data = load_dataset(task.dataset_name, **task.dataset_params)
+        if data.fingerprint != task.fingerprint:
+            raise RuntimeError(
+                f"dataset {task.dataset_name!r} loaded in a worker differs from the sweep's "
+                "(fingerprints differ)"
+            )
+        result = evaluate_group(task.group, data, task.seed, task.repeats, task.folds)
+        return _Outcome(task.group, result, None, started, utc_now(), time.perf_counter() - t0)
+    except Exception:  # noqa: BLE001 - a failed trial keeps its traceback; the sweep goes on
+        return _Outcome(
+            task.group, None, traceback.format_exc(), started, utc_now(), time.perf_counter() - t0
+        )
+
+
+def conduct(
+    study: Study,
+    database: str | Path | None = None,
+    *,
+    workers: int = 1,
+    retry_failed: bool = False,
+    progress: Progress | None = None,
+    on_group: Callable[[_Outcome], None] | None = None,
+) -> ConductSummary:
+    """Run or resume a study; store every trial group as it finishes.
+
+    Parameters
+    ----------
+    study : Study
+        A validated study (see :func:`prunebench.study.load_study`).
+    database : str or Path, optional
+        The results database; default :func:`default_database`.
+    workers : int, default=1
+        Worker processes; 1 runs the groups in this process.
+    retry_failed : bool, default=False
+        Run failed trials again.
+    progress : Progress, optional
+        Where to show progress; default a :class:`Progress` on stderr.
+    on_group : callable, optional
+        Called with each outcome after it is stored (used by tests and tools).
+
+    Returns
+    -------
+    ConductSummary
+    """
+    if workers < 1:
+        raise ConductError(f"--workers must be at least 1; got {workers}")
+    path = Path(database) if database is not None else default_database(study)
+    start = time.perf_counter()
+    summary = ConductSummary(database=path)
+    with ResultStore(path, lock=True) as store:
+        store.register_study(study)
+        statuses = store.statuses(study.study_id)
+        wanted = {"pending", "failed"} if retry_failed else {"pending"}
+        groups = [
+            g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)
+        ]
+        summary.total = len(study.trials())
+        todo = sum(len(g.trials) for g in groups)
+        summary.skipped = summary.total - todo
+        progress = progress or Progress(todo)
+        progress.total = todo
+        tasks = [
+            _Task(
+                group=g,
+                dataset_name=study.dataset_specs[g.dataset][0],
+                dataset_params=study.dataset_specs[g.dataset][1],
+                fingerprint=study.datasets[g.dataset].fingerprint,
+                seed=study.seed,
+                repeats=study.repeats,
+                folds=study.folds,
+            )
+            for g in groups
+        ]
+
+        def store_outcome(outcome: _Outcome) -> None:
+            t0 = time.perf_counter()
+            if outcome.error is None:
+                store.save_group(
+                    outcome.result, outcome.group.trials, outcome.started, outcome.finished
+                )
+                summary.done += len(outcome.group.trials)
+                summary.n_fits += outcome.result.n_fits
+                progress.update(done=len(outcome.group.trials))
+            else:
+                store.save_failure(
+                    outcome.group.trials,
+                    outcome.error,
+                    outcome.started,
+                    outcome.finished,
+                    outcome.seconds,
+                )
+                summary.failed += len(outcome.group.trials)
+                summary.errors.append(outcome.error.strip().splitlines()[-1])
+                progress.update(failed=len(outcome.group.trials))
+            summary.write_seconds += time.perf_counter() - t0
+            summary.groups_run += 1
+            if on_group is not None:
+                on_group(outcome)
+
+        try:
+            if workers == 1 or len(tasks) <= 1:
+                for task in tasks:
+                    store_outcome(_run_task(task))
+            else:
+                with ProcessPoolExecutor(max_workers=workers) as pool:
+                    futures = [pool.submit(_run_task, task) for task in tasks]
+                    for future in as_completed(futures):
+                        store_outcome(future.result())
+        finally:
+            progress.close()
+    summary.seconds = time.perf_counter() - start
+    return summary

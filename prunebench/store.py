@@ -1,0 +1,431 @@
+"""The results database: one SQLite file, one writer, one transaction per trial group.
+
+Tables (see the README for every column): ``studies``, ``datasets``, ``trials``,
+``folds``, ``curves``, ``environments``; views ``arm_summary`` and
+``fold_differences``.  The schema version is SQLite's ``user_version``; older
+files are upgraded step by step, newer ones are refused.  A conducting process
+holds an exclusive lock file beside the database, so a second one is refused.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import fcntl
+import hashlib
+import json
+import os
+import platform
+import sqlite3
+import sys
+from pathlib import Path
+
+import sqlite_utils
+
+from .exceptions import PrunebenchError
+
+__all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "utc_now"]
+
+SCHEMA_VERSION = 1
+
+_SCHEMA = """
+CREATE TABLE studies (
+    study_id TEXT PRIMARY KEY,
+    name TEXT NOT NULL UNIQUE,
+    description TEXT NOT NULL,
+    study_text TEXT NOT NULL,
+    study_hash TEXT NOT NULL,
+    seed INTEGER NOT NULL,
+    outer_repeats INTEGER NOT NULL,
+    outer_folds INTEGER NOT NULL,
+    created TEXT NOT NULL,
+    updated TEXT NOT NULL,
+    prunebench_version TEXT NOT NULL
+);
+CREATE TABLE datasets (
+    dataset_id TEXT PRIMARY KEY,
+    name TEXT NOT NULL,
+    params TEXT NOT NULL,
+    task TEXT NOT NULL CHECK (task IN ('binary', 'multiclass', 'regression')),
+    rows INTEGER NOT NULL,
+    features INTEGER NOT NULL,
+    classes INTEGER,
+    source TEXT NOT NULL,
+    licence TEXT NOT NULL,
+    citation TEXT NOT NULL,
+    fingerprint TEXT NOT NULL
+);
+CREATE TABLE trials (
+    trial_id TEXT PRIMARY KEY,
+    study_id TEXT NOT NULL REFERENCES studies(study_id),
+    dataset_id TEXT NOT NULL REFERENCES datasets(dataset_id),
+    group_id TEXT NOT NULL,
+    criterion TEXT NOT NULL,
+    max_depth INTEGER,
+    min_samples_leaf INTEGER NOT NULL,
+    inner_folds INTEGER NOT NULL,
+    rule TEXT NOT NULL,
+    prune_risk TEXT NOT NULL,
+    status TEXT NOT NULL DEFAULT 'pending' CHECK (status IN ('pending', 'done', 'failed')),
+    error TEXT,
+    started TEXT,
+    finished TEXT,
+    seconds REAL
+);
+CREATE INDEX trials_study_status ON trials(study_id, status);
+CREATE INDEX trials_dataset ON trials(dataset_id);
+CREATE INDEX trials_group ON trials(group_id);
+CREATE TABLE folds (
+    trial_id TEXT NOT NULL REFERENCES trials(trial_id),
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
+    arm TEXT NOT NULL CHECK (arm IN ('unpruned', 'pruned')),
+    n_train INTEGER NOT NULL,
+    n_test INTEGER NOT NULL,
+    test_fingerprint TEXT NOT NULL,
+    error REAL,
+    accuracy REAL,
+    balanced_accuracy REAL,
+    log_loss REAL,
+    brier REAL,
+    mse REAL,
+    mae REAL,
+    r2 REAL,
+    n_leaves INTEGER NOT NULL,
+    depth INTEGER NOT NULL,
+    alpha REAL NOT NULL,
+    fit_seconds REAL NOT NULL,
+    PRIMARY KEY (trial_id, "repeat", fold, arm)
+);
+CREATE INDEX folds_arm ON folds(arm);
+CREATE TABLE curves (
+    group_id TEXT NOT NULL,
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
+    candidate INTEGER NOT NULL,
+    alpha REAL NOT NULL,
+    n_leaves INTEGER NOT NULL,
+    mean REAL NOT NULL,
+    se REAL NOT NULL,
+    PRIMARY KEY (group_id, "repeat", fold, candidate)
+);
+CREATE TABLE environments (
+    environment_id INTEGER PRIMARY KEY,
+    study_id TEXT NOT NULL REFERENCES studies(study_id),
+    recorded TEXT NOT NULL,
+    python TEXT NOT NULL,
+    numpy TEXT NOT NULL,
+    scikit_learn TEXT NOT NULL,
+    pandas TEXT NOT NULL,
+    prunebench TEXT NOT NULL,
+    platform TEXT NOT NULL
+);
+CREATE VIEW arm_summary AS
+SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
+       t.inner_folds, t.rule, t.prune_risk, f.arm, COUNT(*) AS n_folds,
+       AVG(f.error) AS error, AVG(f.accuracy) AS accuracy,
+       AVG(f.balanced_accuracy) AS balanced_accuracy, AVG(f.log_loss) AS log_loss,
+       AVG(f.brier) AS brier, AVG(f.mse) AS mse, AVG(f.mae) AS mae, AVG(f.r2) AS r2,
+       AVG(f.n_leaves) AS n_leaves, AVG(f.depth) AS depth, AVG(f.alpha) AS alpha
+FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
+GROUP BY t.trial_id, f.arm;
+CREATE VIEW fold_differences AS
+SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
+       t.inner_folds, t.rule, t.prune_risk, p."repeat", p.fold, p.n_train, p.n_test,
+       p.error - u.error AS error, p.accuracy - u.accuracy AS accuracy,
+       p.balanced_accuracy - u.balanced_accuracy AS balanced_accuracy,
+       p.log_loss - u.log_loss AS log_loss, p.brier - u.brier AS brier,
+       p.mse - u.mse AS mse, p.mae - u.mae AS mae, p.r2 - u.r2 AS r2,
+       p.n_leaves - u.n_leaves AS n_leaves, p.alpha AS alpha
+FROM folds p
+JOIN folds u ON u.trial_id = p.trial_id AND u."repeat" = p."repeat" AND u.fold = p.fold
+     AND u.arm = 'unpruned'
+JOIN trials t ON t.trial_id = p.trial_id JOIN datasets d USING (dataset_id)
+WHERE p.arm = 'pruned';
+"""
+
+# schema version n -> SQL that brings a version-n file to n + 1
+_UPGRADES: dict[int, str] = {}
+
+
+class StoreError(PrunebenchError):
+    """The results database cannot be used as asked."""
+
+    exit_code = 1
+
+
+def utc_now() -> str:
+    """The current time as ISO 8601 UTC, to the millisecond."""
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+
+
+class ResultStore:
+    """The results database, behind one class with a single writer.
+
+    Parameters
+    ----------
+    path : str or Path
+        The SQLite file; created (with its schema) if missing, unless ``readonly``.
+    readonly : bool, default=False
+        Open without writing; the file must exist.
+    lock : bool, default=False
+        Take the conducting lock: refuse if another process holds it.
+    """
+
+    def __init__(self, path: str | Path, *, readonly: bool = False, lock: bool = False) -> None:
+        self.path = Path(path)
+        self.readonly = readonly
+        self._lock_handle = None
+        if readonly and not self.path.exists():
+            raise StoreError(f"{self.path}: no such results database")
+        if lock:
+            self._take_lock()
+        try:
+            if readonly:
+                conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True)
+            else:
+                self.path.parent.mkdir(parents=True, exist_ok=True)
+                conn = sqlite3.connect(self.path, timeout=30)
+            self.db = sqlite_utils.Database(conn)
+            self._prepare()
+        except sqlite3.DatabaseError as err:
+            self._release_lock()
+            raise StoreError(f"{self.path}: cannot use this results database: {err}") from None
+
+    # -- opening --------------------------------------------------------------------------
+
+    def _take_lock(self) -> None:
+        lock_path = self.path.with_name(self.path.name + ".lock")
+        lock_path.parent.mkdir(parents=True, exist_ok=True)
+        handle = open(lock_path, "a+")
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            handle.seek(0)
+            holder = handle.read().strip() or "another process"
+            handle.close()
+            raise StoreError(
+                f"{self.path} is being written by another 'prunebench conduct' ({holder}); "
+                "wait for it to finish or stop it first"
+            ) from None
+        handle.seek(0)
+        handle.truncate()
+        handle.write(f"pid {os.getpid()}")
+        handle.flush()
+        self._lock_handle = handle
+
+    def _release_lock(self) -> None:
+        if self._lock_handle is not None:
+            fcntl.flock(self._lock_handle, fcntl.LOCK_UN)
+            self._lock_handle.close()
+            self._lock_handle = None
+
+    def _prepare(self) -> None:
+        conn = self.db.conn
+        version = conn.execute("PRAGMA user_version").fetchone()[0]
+        tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+        if version > SCHEMA_VERSION:
+            raise StoreError(
+                f"{self.path} was written by a newer prunebench (schema {version}; this one "
+                f"knows {SCHEMA_VERSION}); upgrade prunebench to read it"
+            )
+        if version == 0 and tables:
+            raise StoreError(f"{self.path} is an SQLite file but not a prunebench results database")
+        if self.readonly:
+            if version == 0:
+                raise StoreError(f"{self.path} is not a prunebench results database")
+            return
+        conn.execute("PRAGMA journal_mode=WAL")
+        conn.execute("PRAGMA foreign_keys=ON")
+        if version == 0:
+            with conn:
+                conn.executescript(
+                    f"BEGIN; {_SCHEMA} PRAGMA user_version = {SCHEMA_VERSION}; COMMIT;"
+                )
+            version = SCHEMA_VERSION
+        while version < SCHEMA_VERSION:
+            with conn:
+                conn.executescript(
+                    f"BEGIN; {_UPGRADES[version]} PRAGMA user_version = {version + 1}; COMMIT;"
+                )
+            version += 1
+
+    def close(self) -> None:
+        """Close the database and release the conducting lock."""
+        self.db.conn.close()
+        self._release_lock()
+
+    def __enter__(self) -> ResultStore:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- writing ----------------------------------------------------------------------------
+
+    def register_study(self, study) -> None:
+        """Record a study, its data sets and its trials (new trials as ``pending``).
+
+        Refuses, with the reason, a study whose seed or outer scheme differ from the
+        results already stored under its name: those results depend on them.
+
+        Parameters
+        ----------
+        study : Study
+        """
+        from . import __version__
+
+        now = utc_now()
+        existing = self.db.conn.execute(
+            "SELECT seed, outer_repeats, outer_folds FROM studies WHERE study_id = ?",
+            [study.study_id],
+        ).fetchone()
+        if existing:
+            seed, repeats, folds = existing
+            changed = []
+            if seed != study.seed:
+                changed.append(f"seed {seed} -> {study.seed}")
+            if (repeats, folds) != (study.repeats, study.folds):
+                changed.append(f"outer {repeats}x{folds} -> {study.outer_scheme}")
+            if changed:
+                raise StoreError(
+                    f"study {study.name!r} in {self.path} already has results that depend on "
+                    f"{' and '.join(changed)}; keep them as they were, or give the study a new "
+                    "name or a new database"
+                )
+        with self.db.conn:
+            if existing:
+                self.db.conn.execute(
+                    "UPDATE studies SET description = ?, study_text = ?, study_hash = ?, "
+                    "updated = ?, prunebench_version = ? WHERE study_id = ?",
+                    [
+                        study.description,
+                        study.text,
+                        study.text_hash,
+                        now,
+                        __version__,
+                        study.study_id,
+                    ],
+                )
+            else:
+                self.db["studies"].insert(
+                    {
+                        "study_id": study.study_id,
+                        "name": study.name,
+                        "description": study.description,
+                        "study_text": study.text,
+                        "study_hash": study.text_hash,
+                        "seed": study.seed,
+                        "outer_repeats": study.repeats,
+                        "outer_folds": study.folds,
+                        "created": now,
+                        "updated": now,
+                        "prunebench_version": __version__,
+                    }
+                )
+            for key, data in study.datasets.items():
+                self.db["datasets"].insert(
+                    {
+                        "dataset_id": self.dataset_id(key, data.fingerprint),
+                        "name": key,
+                        "params": json.dumps(data.params, sort_keys=True),
+                        "task": data.task,
+                        "rows": int(data.X.shape[0]),
+                        "features": int(data.X.shape[1]),
+                        "classes": data.n_classes,
+                        "source": data.info.source,
+                        "licence": data.info.licence,
+                        "citation": data.info.citation,
+                        "fingerprint": data.fingerprint,
+                    },
+                    ignore=True,
+                )
+            self.db["trials"].insert_all(
+                (
+                    {
+                        "trial_id": t.trial_id,
+                        "study_id": study.study_id,
+                        "dataset_id": self.dataset_id(
+                            t.dataset, study.datasets[t.dataset].fingerprint
+                        ),
+                        "group_id": t.group_id,
+                        **t.levels(),
+                        "status": "pending",
+                    }
+                    for t in study.trials()
+                ),
+                ignore=True,
+            )
+            self._record_environment(study.study_id, now)
+
+    @staticmethod
+    def dataset_id(key: str, fingerprint: str) -> str:
+        """Id of a data set: its study key and its fingerprint."""
+        return hashlib.sha256(f"{key}:{fingerprint}".encode()).hexdigest()[:16]
+
+    def _record_environment(self, study_id: str, now: str) -> None:
+        import numpy
+        import pandas
+        import sklearn
+
+        from . import __version__
+
+        self.db["environments"].insert(
+            {
+                "study_id": study_id,
+                "recorded": now,
+                "python": sys.version.split()[0],
+                "numpy": numpy.__version__,
+                "scikit_learn": sklearn.__version__,
+                "pandas": pandas.__version__,
+                "prunebench": __version__,
+                "platform": platform.platform(),
+            }
+        )
+
+    def statuses(self, study_id: str) -> dict[str, str]:
+        """trial_id -> status for a study."""
+        rows = self.db.conn.execute(
+            "SELECT trial_id, status FROM trials WHERE study_id = ?", [study_id]
+        )
+        return dict(rows.fetchall())
+
+    def save_group(self, result, trials, started: str, finished: str) -> None:
+        """Store a finished group: its fold and curve rows and ``done``, in one transaction.
+
+        Earlier rows of the same trials (from a failed attempt) are replaced.
+        """
+        ids = [t.trial_id for t in trials]
+        marks = ",".join("?" * len(ids))
+        with self.db.conn:
+            self.db.conn.execute(f"DELETE FROM folds WHERE trial_id IN ({marks})", ids)
+            self.db.conn.execute("DELETE FROM curves WHERE group_id = ?", [result.group_id])
+            self.db["folds"].insert_all(result.folds, batch_size=500)
+            self.db["curves"].insert_all(result.curves, batch_size=500)
+            self.db.conn.execute(
+                f"UPDATE trials SET status = 'done', error = NULL, started = ?, finished = ?, "
+                f"seconds = ? WHERE trial_id IN ({marks})",
+                [started, finished, result.seconds, *ids],
+            )
+
+    def save_failure(self, trials, error: str, started: str, finished: str, seconds: float) -> None:
+        """Mark trials ``failed`` with the error text (a traceback), in one transaction."""
+        ids = [t.trial_id for t in trials]
+        marks = ",".join("?" * len(ids))
+        with self.db.conn:
+            self.db.conn.execute(
+                f"UPDATE trials SET status = 'failed', error = ?, started = ?, finished = ?, "
+                f"seconds = ? WHERE trial_id IN ({marks})",
+                [error, started, finished, seconds, *ids],
+            )
+
+    # -- reading ----------------------------------------------------------------------------
+
+    def query(self, sql: str, params: list | tuple = ()) -> list[dict]:
+        """Rows of a query as dicts."""
+        cursor = self.db.conn.execute(sql, params)
+        names = [c[0] for c in cursor.description]
+        return [dict(zip(names, row, strict=True)) for row in cursor.fetchall()]
+
+    def integrity(self) -> str:
+        """``PRAGMA integrity_check``'s answer (``"ok"`` when sound)."""
+        return self.db.conn.execute("PRAGMA integrity_check").fetchone()[0]

@@ -1,0 +1,561 @@
+"""Study files: parse, validate, and expand into trials and trial groups.
+
+A study file is TOML::
+
+    name = "harbour-loans"
+    description = "Which pruning defaults for the loan-desk trees?"
+    seed = 7
+    database = "harbour-loans.sqlite"     # optional; relative to the study file
+    datasets = ["breast_cancer", "wine"]  # or [[datasets]] tables: name = "...", plus parameters
+
+    [outer]                               # nested CV: outer repeated K-fold
+    repeats = 10
+    folds = 10
+
+    [factors]                             # levels to sweep; every combination is a trial
+    criterion = ["gini", "entropy"]
+    max_depth = ["none", 4, 8]            # "none" = unlimited
+    min_samples_leaf = [1, 5]
+    inner_folds = [5, 10]                 # folds of the inner CV that chooses alpha
+    rule = ["min", "1se"]
+    prune_risk = ["error"]
+
+Classification and regression data sets may share a study only when the
+task-specific factors are given per task: ``[factors.classification]`` and
+``[factors.regression]`` tables override ``[factors]`` for the data sets of
+that task, and ``criterion`` and ``prune_risk`` must then suit every task they
+apply to.  Every mistake raises :class:`StudyError` with one line naming the file,
+the line where it could be found, and the key.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import json
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .datasets import DatasetError, LoadedDataset, is_classification, load_dataset
+from .exceptions import PrunebenchError
+from .selection import parse_rule
+
+__all__ = [
+    "CLASSIFICATION_CRITERIA",
+    "REGRESSION_CRITERIA",
+    "Study",
+    "StudyError",
+    "Trial",
+    "TrialGroup",
+    "load_study",
+    "parse_study",
+]
+
+CLASSIFICATION_CRITERIA = ("gini", "entropy", "log_loss")
+REGRESSION_CRITERIA = ("squared_error", "absolute_error", "poisson")
+_RISKS = {"classification": ("error", "impurity"), "regression": ("squared_error", "impurity")}
+_CRITERIA = {"classification": CLASSIFICATION_CRITERIA, "regression": REGRESSION_CRITERIA}
+_DEFAULTS = {
+    "classification": {"criterion": ["gini"], "prune_risk": ["error"]},
+    "regression": {"criterion": ["squared_error"], "prune_risk": ["squared_error"]},
+    "common": {
+        "max_depth": ["none"],
+        "min_samples_leaf": [1],
+        "inner_folds": [10],
+        "rule": ["1se"],
+    },
+}
+FACTORS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk")
+_TOP_KEYS = {"name", "description", "seed", "database", "datasets", "outer", "factors"}
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,79}$")
+
+
+class StudyError(PrunebenchError):
+    """A study file cannot be used as written."""
+
+    exit_code = 2
+
+
+@dataclass(frozen=True)
+class Trial:
+    """One configuration on one data set.
+
+    Attributes
+    ----------
+    trial_id : str
+        Deterministic id from the study name, the data set's fingerprint and the levels.
+    group_id : str
+        Id of the trials that share every tree fit (they differ only in ``rule``).
+    dataset : str
+        The data set's key in the study (its name, or name plus parameters).
+    criterion, max_depth, min_samples_leaf, inner_folds, rule, prune_risk
+        The levels; ``max_depth`` is None for unlimited.
+    """
+
+    trial_id: str
+    group_id: str
+    dataset: str
+    criterion: str
+    max_depth: int | None
+    min_samples_leaf: int
+    inner_folds: int
+    rule: str
+    prune_risk: str
+
+    def levels(self) -> dict:
+        """The factor levels as a dict."""
+        return {f: getattr(self, f) for f in FACTORS}
+
+
+@dataclass(frozen=True)
+class TrialGroup:
+    """Trials that share every tree fit: same data set and levels but the rule."""
+
+    group_id: str
+    dataset: str
+    criterion: str
+    max_depth: int | None
+    min_samples_leaf: int
+    inner_folds: int
+    prune_risk: str
+    trials: tuple[Trial, ...]
+
+    @property
+    def rules(self) -> list[str]:
+        """The rules of the group's trials."""
+        return [t.rule for t in self.trials]
+
+
+@dataclass
+class Study:
+    """A validated study.
+
+    Attributes
+    ----------
+    name, description : str
+    seed : int
+    repeats, folds : int
+        The outer scheme.
+    datasets : dict
+        Study key -> :class:`~prunebench.datasets.LoadedDataset`.
+    dataset_specs : dict
+        Study key -> (registry name, parameters), for workers that load by name.
+    factors : dict
+        Task ("classification"/"regression") -> factor -> levels.
+    text : str
+        The study file's text.
+    path : Path or None
+    database : Path or None
+        From the file, resolved against its folder.
+    """
+
+    name: str
+    description: str
+    seed: int
+    repeats: int
+    folds: int
+    datasets: dict[str, LoadedDataset]
+    dataset_specs: dict[str, tuple[str, dict]]
+    factors: dict[str, dict[str, list]]
+    text: str
+    path: Path | None = None
+    database: Path | None = None
+    _trials: list[Trial] = field(default_factory=list, repr=False)
+
+    @property
+    def text_hash(self) -> str:
+        """SHA-256 of the study file's text."""
+        return hashlib.sha256(self.text.encode()).hexdigest()
+
+    @property
+    def study_id(self) -> str:
+        """Deterministic id of the study: a hash of its name."""
+        return hashlib.sha256(f"study:{self.name}".encode()).hexdigest()[:16]
+
+    @property
+    def outer_scheme(self) -> str:
+        """The outer CV scheme, e.g. ``"10x10"`` (repeats x folds)."""
+        return f"{self.repeats}x{self.folds}"
+
+    def trials(self) -> list[Trial]:
+        """Every trial: data sets x factor levels, in a fixed order."""
+        if not self._trials:
+            self._trials = list(_expand(self))
+        return self._trials
+
+    def groups(self) -> list[TrialGroup]:
+        """The trials grouped by shared tree fits, in a fixed order."""
+        groups: dict[str, list[Trial]] = {}
+        for trial in self.trials():
+            groups.setdefault(trial.group_id, []).append(trial)
+        out = []
+        for gid, trials in groups.items():
+            t = trials[0]
+            out.append(
+                TrialGroup(
+                    group_id=gid,
+                    dataset=t.dataset,
+                    criterion=t.criterion,
+                    max_depth=t.max_depth,
+                    min_samples_leaf=t.min_samples_leaf,
+                    inner_folds=t.inner_folds,
+                    prune_risk=t.prune_risk,
+                    trials=tuple(trials),
+                )
+            )
+        return out
+
+    def task_of(self, dataset: str) -> str:
+        """``"classification"`` or ``"regression"`` for a data set of the study."""
+        task = self.datasets[dataset].task
+        return "classification" if is_classification(task) else "regression"
+
+
+def _hash(*parts: object) -> str:
+    return hashlib.sha256(json.dumps(parts, sort_keys=True).encode()).hexdigest()[:16]
+
+
+def _expand(study: Study):
+    for key, data in study.datasets.items():
+        levels = study.factors[study.task_of(key)]
+        for crit, depth, leaf, inner, risk in itertools.product(
+            levels["criterion"],
+            levels["max_depth"],
+            levels["min_samples_leaf"],
+            levels["inner_folds"],
+            levels["prune_risk"],
+        ):
+            depth_value = None if depth == "none" else depth
+            group = _hash(study.name, data.fingerprint, crit, depth_value, leaf, inner, risk)
+            for rule in levels["rule"]:
+                yield Trial(
+                    trial_id=_hash(
+                        study.name, data.fingerprint, crit, depth_value, leaf, inner, rule, risk
+                    ),
+                    group_id=group,
+                    dataset=key,
+                    criterion=crit,
+                    max_depth=depth_value,
+                    min_samples_leaf=leaf,
+                    inner_folds=inner,
+                    rule=rule,
+                    prune_risk=risk,
+                )
+
+
+class _Checker:
+    """Raises one clear line per mistake, with the file and line where possible."""
+
+    def __init__(self, text: str, source: str) -> None:
+        self.lines = text.splitlines()
+        self.source = source
+
+    def line_of(self, key: str) -> int | None:
+        *tables, leaf = key.split(".")
+        table = ".".join(tables)
+        current = ""
+        pattern = re.compile(rf"^\s*{re.escape(leaf)}\s*=")
+        header = re.compile(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?")
+        for number, line in enumerate(self.lines, start=1):
+            match = header.match(line)
+            if match:
+                current = match.group(1)
+                continue
+            if current == table and pattern.match(line):
+                return number
+        for number, line in enumerate(self.lines, start=1):
+            if re.match(rf"^\s*\[\[?\s*{re.escape(key)}\s*\]\]?", line):
+                return number
+        return None
+
+    def fail(self, key: str, message: str, line_key: str | None = None) -> StudyError:
+        line = self.line_of(line_key or key)
+        where = f"{self.source}:{line}" if line else self.source
+        return StudyError(f"{where}: key '{key}': {message}")
+
+
+def _is_int(v: object) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _levels(check: _Checker, key: str, value: object) -> list:
+    if not isinstance(value, list):
+        value = [value]
+    if not value:
+        raise check.fail(key, "needs at least one level")
+    if len(set(map(repr, value))) != len(value):
+        raise check.fail(key, f"has a repeated level in {value!r}")
+    return value
+
+
+def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str | None) -> list:
+    for v in levels:
+        if name == "criterion":
+            allowed = _CRITERIA[task] if task else CLASSIFICATION_CRITERIA + REGRESSION_CRITERIA
+            if v not in allowed:
+                raise check.fail(
+                    key,
+                    f"{v!r} is not a {task or ''} criterion; use one of "
+                    f"{', '.join(allowed)}".replace("a  ", "a "),
+                )
+        elif name == "prune_risk":
+            allowed = _RISKS[task] if task else ("error", "impurity", "squared_error")
+            if v not in allowed:
+                raise check.fail(
+                    key,
+                    f"{v!r} is not a {task or ''} pruning risk; use one of "
+                    f"{', '.join(allowed)}".replace("a  ", "a "),
+                )
+        elif name == "max_depth":
+            if not (v == "none" or (_is_int(v) and v >= 1)):
+                raise check.fail(key, f'{v!r} is not a depth: use an integer >= 1 or "none"')
+        elif name == "min_samples_leaf":
+            if not (_is_int(v) and v >= 1):
+                raise check.fail(key, f"{v!r} is not a leaf size: use an integer >= 1")
+        elif name == "inner_folds":
+            if not (_is_int(v) and v >= 2):
+                raise check.fail(key, f"{v!r} is not a fold count: use an integer >= 2")
+        elif name == "rule":
+            try:
+                parse_rule(v)
+            except ValueError:
+                raise check.fail(
+                    key, f'{v!r} is not a rule: use "min" or a k-SE rule like "1se", "0.5se"'
+                ) from None
+    if name == "rule":
+        names = [parse_rule(v).name for v in levels]
+        if len(set(names)) != len(names):
+            raise check.fail(key, f"names one rule twice in {levels!r}")
+        return names
+    return levels
+
+
+def _datasets(check: _Checker, value: object) -> list[tuple[str, str, dict]]:
+    if not isinstance(value, list) or not value:
+        raise check.fail("datasets", "must be a non-empty list of dataset names or tables")
+    out = []
+    for item in value:
+        if isinstance(item, str):
+            name, params = item, {}
+        elif isinstance(item, dict):
+            if not isinstance(item.get("name"), str):
+                raise check.fail(
+                    "datasets", 'every dataset table needs name = "..."', line_key="datasets"
+                )
+            params = {k: v for k, v in item.items() if k != "name"}
+            name = item["name"]
+        else:
+            raise check.fail("datasets", f"{item!r} is neither a dataset name nor a table")
+        key = (
+            name
+            if not params
+            else f"{name}({', '.join(f'{k}={v}' for k, v in sorted(params.items()))})"
+        )
+        if key in [k for k, _, _ in out]:
+            raise check.fail("datasets", f"names {key!r} twice")
+        out.append((key, name, params))
+    return out
+
+
+def parse_study(text: str, source: str = "<study>", base: Path | None = None) -> Study:
+    """Validate a study file's text and load its data sets.
+
+    Parameters
+    ----------
+    text : str
+        TOML text.
+    source : str
+        Name used in messages (the file's path).
+    base : Path, optional
+        Folder against which a relative ``database`` is resolved.
+
+    Returns
+    -------
+    Study
+
+    Raises
+    ------
+    StudyError
+        One line naming the file, line and key of the first mistake.
+    """
+    check = _Checker(text, source)
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise StudyError(f"{source}: not valid TOML: {err}") from None
+    for key in doc:
+        if key not in _TOP_KEYS:
+            raise check.fail(
+                key, f"is not a study key; the keys are {', '.join(sorted(_TOP_KEYS))}"
+            )
+    for key in ("name", "seed", "datasets"):
+        if key not in doc:
+            raise StudyError(f"{source}: key '{key}' is missing")
+    name = doc["name"]
+    if not isinstance(name, str) or not _NAME.match(name):
+        raise check.fail(
+            "name", "must be 1-80 letters, digits, '_', '-' or '.', starting with a letter or digit"
+        )
+    description = doc.get("description", "")
+    if not isinstance(description, str):
+        raise check.fail("description", "must be a string")
+    seed = doc["seed"]
+    if not _is_int(seed) or not 0 <= seed < 2**32:
+        raise check.fail("seed", f"must be an integer in [0, 2**32); got {seed!r}")
+    database = doc.get("database")
+    if database is not None and (not isinstance(database, str) or not database.strip()):
+        raise check.fail("database", "must be a file path")
+
+    outer = doc.get("outer", {})
+    if not isinstance(outer, dict):
+        raise check.fail("outer", "must be a table with repeats and folds")
+    for key in outer:
+        if key not in ("repeats", "folds"):
+            raise check.fail(f"outer.{key}", "is not an outer key; use repeats and folds")
+    repeats, folds = outer.get("repeats", 10), outer.get("folds", 10)
+    if not _is_int(repeats) or repeats < 1:
+        raise check.fail("outer.repeats", f"must be an integer >= 1; got {repeats!r}")
+    if not _is_int(folds) or folds < 2:
+        raise check.fail("outer.folds", f"must be an integer >= 2; got {folds!r}")
+
+    factors_doc = doc.get("factors", {})
+    if not isinstance(factors_doc, dict):
+        raise check.fail("factors", "must be a table of factor levels")
+    per_task = {}
+    for key, value in factors_doc.items():
+        if key in ("classification", "regression"):
+            if not isinstance(value, dict):
+                raise check.fail(f"factors.{key}", "must be a table of factor levels")
+            for sub in value:
+                if sub not in FACTORS:
+                    raise check.fail(
+                        f"factors.{key}.{sub}",
+                        f"is not a factor; the factors are {', '.join(FACTORS)}",
+                    )
+            per_task[key] = value
+        elif key not in FACTORS:
+            raise check.fail(
+                f"factors.{key}", f"is not a factor; the factors are {', '.join(FACTORS)}"
+            )
+
+    entries = _datasets(check, doc["datasets"])
+    loaded: dict[str, LoadedDataset] = {}
+    specs: dict[str, tuple[str, dict]] = {}
+    for key, ds_name, params in entries:
+        try:
+            loaded[key] = load_dataset(ds_name, **params)
+        except DatasetError as err:
+            raise check.fail("datasets", str(err)) from None
+        specs[key] = (ds_name, params)
+    tasks = sorted(
+        {"classification" if is_classification(d.task) else "regression" for d in loaded.values()}
+    )
+    for task in per_task:
+        if task not in tasks:
+            raise check.fail(f"factors.{task}", f"no {task} dataset in the study")
+
+    factors: dict[str, dict[str, list]] = {}
+    for task in tasks:
+        levels = {}
+        for factor in FACTORS:
+            if factor in per_task.get(task, {}):
+                key, value = f"factors.{task}.{factor}", per_task[task][factor]
+            elif factor in factors_doc:
+                key, value = f"factors.{factor}", factors_doc[factor]
+            else:
+                key = f"factors.{factor}"
+                value = _DEFAULTS.get(task, {}).get(factor) or _DEFAULTS["common"][factor]
+            values = _levels(check, key, value)
+            if (
+                len(tasks) > 1
+                and factor in ("criterion", "prune_risk")
+                and key == f"factors.{factor}"
+            ):
+                # one list cannot suit both tasks' criteria and risks
+                bad = [
+                    v
+                    for v in values
+                    if v not in (_CRITERIA if factor == "criterion" else _RISKS)[task]
+                ]
+                if bad:
+                    raise check.fail(
+                        key,
+                        f"{bad[0]!r} does not fit the {task} datasets; with both tasks in one "
+                        f"study give {factor} in [factors.classification] and [factors.regression]",
+                    )
+            levels[factor] = _check_factor(check, key, factor, values, task)
+        factors[task] = levels
+
+    for key, data in loaded.items():
+        task = "classification" if is_classification(data.task) else "regression"
+        if len(data.y) < 2 * folds:
+            raise check.fail(
+                "outer.folds",
+                f"{folds} folds need at least {2 * folds} rows; dataset {key!r} has {len(data.y)}",
+            )
+        if task == "classification":
+            if data.smallest_class < folds:
+                raise check.fail(
+                    "outer.folds",
+                    f"{folds} folds is more than the {data.smallest_class} rows of "
+                    f"the smallest class of dataset {key!r}",
+                )
+            # the inner CV runs on the outer-training part: about (folds-1)/folds of it
+            inner_rows = data.smallest_class * (folds - 1) // folds
+            inner_key = (
+                f"factors.{task}.inner_folds"
+                if "inner_folds" in per_task.get(task, {})
+                else "factors.inner_folds"
+            )
+            too_many = [k for k in factors[task]["inner_folds"] if k > inner_rows]
+            if too_many:
+                raise check.fail(
+                    inner_key,
+                    f"{too_many[0]} inner folds is more than the about {inner_rows} "
+                    f"rows of the smallest class of dataset {key!r} in an outer-training part",
+                )
+    base = base or Path(".")
+    return Study(
+        name=name,
+        description=description,
+        seed=seed,
+        repeats=repeats,
+        folds=folds,
+        datasets=loaded,
+        dataset_specs=specs,
+        factors=factors,
+        text=text,
+        database=(base / database) if database else None,
+    )
+
+
+def load_study(path: str | Path) -> Study:
+    """Read and validate a study file.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Study
+
+    Raises
+    ------
+    StudyError
+        If the file cannot be read or has a mistake (one line naming the key).
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise StudyError(f"{path}: no such study file") from None
+    except UnicodeDecodeError as err:
+        raise StudyError(f"{path}: not UTF-8 text ({err.reason} at byte {err.start})") from None
+    except OSError as err:
+        raise StudyError(f"{path}: cannot read the study file: {err.strerror}") from None
+    study = parse_study(text, source=str(path), base=path.parent)
+    study.path = path
+    return study
