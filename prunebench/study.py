@@ -33,6 +33,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import os
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -527,7 +528,7 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         dataset_specs=specs,
         factors=factors,
         text=text,
-        database=(base / database) if database else None,
+        database=Path(os.path.normpath(base / database)) if database else None,
     )
 
 

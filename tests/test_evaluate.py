@@ -1,0 +1,159 @@
+"""Tests of the nested, repeated CV evaluation of one trial group."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from sklearn.metrics import brier_score_loss, log_loss, mean_squared_error, r2_score
+
+from prunebench.evaluate import derive_seed, evaluate_group, outer_splits
+from prunebench.study import parse_study
+
+STUDY = """\
+name = "evaluate-unit"
+seed = 11
+datasets = ["breast_cancer"]
+[outer]
+repeats = 2
+folds = 4
+[factors]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 3]
+inner_folds = [4]
+rule = {rules}
+"""
+
+
+def _study(rules='["min", "1se", "0.5se"]', datasets=None):
+    text = STUDY.format(rules=rules)
+    if datasets:
+        text = text.replace('["breast_cancer"]', datasets)
+    return parse_study(text)
+
+
+def test_rules_share_every_fit():
+    # the shared fits are real: counted trees, not time
+    three = _study()
+    one = _study('["1se"]')
+    data = three.datasets["breast_cancer"]
+    r3 = evaluate_group(three.groups()[0], data, three.seed, three.repeats, three.folds)
+    r1 = evaluate_group(one.groups()[0], data, one.seed, one.repeats, one.folds)
+    # per outer fold: T_max, then one tree per inner fold
+    assert r1.n_fits == r3.n_fits == 2 * 4 * (1 + 4)
+    assert len(r3.folds) == 3 * len(r1.folds) == 3 * 2 * 4 * 2
+    # the 1se trial's rows do not depend on which other rules share its group
+    rows1 = {(r["repeat"], r["fold"], r["arm"]): r for r in r1.folds}
+    one_se = [r for r in r3.folds if r["trial_id"] == r1.folds[0]["trial_id"]]
+    for row in one_se:
+        other = rows1[(row["repeat"], row["fold"], row["arm"])]
+        for key in ("error", "log_loss", "n_leaves", "alpha"):
+            assert row[key] == other[key]
+
+
+def test_configurations_share_outer_test_folds():
+    study = _study()
+    data = study.datasets["breast_cancer"]
+    prints = []
+    for group in study.groups()[:3]:
+        result = evaluate_group(group, data, study.seed, study.repeats, study.folds)
+        prints.append(
+            sorted({(r["repeat"], r["fold"], r["test_fingerprint"]) for r in result.folds})
+        )
+    assert prints[0] == prints[1] == prints[2]
+    assert len(prints[0]) == study.repeats * study.folds
+
+
+def test_outer_splits_are_stratified_and_cover_every_row_once_per_repeat():
+    study = _study()
+    data = study.datasets["breast_cancer"]
+    splits = outer_splits(data, study.seed, 3, 5)
+    assert len(splits) == 15
+    for r in range(3):
+        tests = np.concatenate([test for rep, _, _, test in splits if rep == r])
+        assert np.array_equal(np.sort(tests), np.arange(len(data.y)))
+    share = data.y.mean()
+    for _, _, _, test in splits:
+        assert abs(data.y[test].mean() - share) < 0.02
+    # a different study seed gives different folds
+    other = outer_splits(data, study.seed + 1, 3, 5)
+    assert not np.array_equal(splits[0][3], other[0][3])
+
+
+def test_metrics_agree_with_sklearn_on_each_fold():
+    # scikit-learn as reference library for the metric definitions
+    study = _study('["1se"]', datasets='["wine"]')
+    data = study.datasets["wine"]
+    group = study.groups()[0]
+    result = evaluate_group(group, data, study.seed, study.repeats, study.folds)
+    for row in result.folds:
+        assert row["error"] == pytest.approx(1 - row["accuracy"])
+        assert 0 <= row["brier"] <= 2 and row["log_loss"] >= 0
+    # recompute one unpruned fold by hand
+    from sklearn.tree import DecisionTreeClassifier
+
+    repeat, fold, train, test = outer_splits(data, study.seed, study.repeats, study.folds)[0]
+    tree = DecisionTreeClassifier(
+        criterion=group.criterion,
+        max_depth=group.max_depth,
+        min_samples_leaf=1,
+        random_state=derive_seed(study.seed, data.fingerprint, repeat, fold, "tree"),
+    ).fit(data.X[train], data.y[train])
+    row = next(r for r in result.folds if (r["repeat"], r["fold"], r["arm"]) == (0, 0, "unpruned"))
+    proba = tree.predict_proba(data.X[test])
+    assert row["error"] == pytest.approx(np.mean(tree.predict(data.X[test]) != data.y[test]))
+    assert row["log_loss"] == pytest.approx(
+        log_loss(data.y[test], np.clip(proba, 1e-15, 1), labels=tree.classes_), rel=1e-6
+    )
+    onehot = np.eye(3)[data.y[test]]
+    assert row["brier"] == pytest.approx(np.mean(np.sum((proba - onehot) ** 2, axis=1)))
+    assert row["n_leaves"] == tree.get_n_leaves()
+
+
+def test_binary_brier_matches_sklearn():
+    study = _study('["min"]')
+    data = study.datasets["breast_cancer"]
+    group = study.groups()[0]
+    result = evaluate_group(group, data, study.seed, 1, study.folds)
+    row = result.folds[0]
+    from sklearn.tree import DecisionTreeClassifier
+
+    _, _, train, test = outer_splits(data, study.seed, 1, study.folds)[0]
+    tree = DecisionTreeClassifier(
+        criterion=group.criterion,
+        random_state=derive_seed(study.seed, data.fingerprint, 0, 0, "tree"),
+    ).fit(data.X[train], data.y[train])
+    p1 = tree.predict_proba(data.X[test])[:, 1]
+    # the multi-class Brier score sums over both classes: twice the binary one
+    assert row["brier"] == pytest.approx(2 * brier_score_loss(data.y[test], p1))
+
+
+def test_regression_group_scores():
+    text = """\
+name = "reg-unit"
+seed = 2
+datasets = ["diabetes"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+min_samples_leaf = [5]
+inner_folds = [3]
+rule = ["min"]
+"""
+    study = parse_study(text)
+    data = study.datasets["diabetes"]
+    result = evaluate_group(study.groups()[0], data, study.seed, 1, 3)
+    assert {r["arm"] for r in result.folds} == {"unpruned", "pruned"}
+    from sklearn.tree import DecisionTreeRegressor
+
+    _, _, train, test = outer_splits(data, study.seed, 1, 3)[0]
+    tree = DecisionTreeRegressor(
+        min_samples_leaf=5, random_state=derive_seed(study.seed, data.fingerprint, 0, 0, "tree")
+    ).fit(data.X[train], data.y[train])
+    row = next(r for r in result.folds if r["arm"] == "unpruned" and r["fold"] == 0)
+    pred = tree.predict(data.X[test])
+    assert row["mse"] == pytest.approx(mean_squared_error(data.y[test], pred))
+    assert row["r2"] == pytest.approx(r2_score(data.y[test], pred))
+    pruned = [r for r in result.folds if r["arm"] == "pruned"]
+    assert all(r["n_leaves"] < tree.get_n_leaves() for r in pruned)
+    assert len(result.curves) > 3 and {c["fold"] for c in result.curves} == {0, 1, 2}

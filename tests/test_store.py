@@ -1,0 +1,163 @@
+"""Tests of the results database (prunebench.store)."""
+
+from __future__ import annotations
+
+import sqlite3
+
+import pytest
+
+from prunebench.evaluate import evaluate_group
+from prunebench.store import SCHEMA_VERSION, ResultStore, StoreError
+from prunebench.study import parse_study
+
+STUDY = """\
+name = "store-unit"
+seed = 4
+datasets = ["iris"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+max_depth = ["none", 2]
+inner_folds = [3]
+rule = ["min", "1se"]
+"""
+
+
+@pytest.fixture
+def filled(tmp_path):
+    study = parse_study(STUDY)
+    path = tmp_path / "r.sqlite"
+    with ResultStore(path) as store:
+        store.register_study(study)
+        for group in study.groups():
+            result = evaluate_group(group, study.datasets["iris"], study.seed, 1, 3)
+            store.save_group(result, group.trials, "t0", "t1")
+    return study, path
+
+
+def test_schema_tables_columns_and_version(filled):
+    _, path = filled
+    conn = sqlite3.connect(path)
+    tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+    assert tables == {"studies", "datasets", "trials", "folds", "curves", "environments"}
+    views = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='view'")}
+    assert views == {"arm_summary", "fold_differences"}
+    columns = {r[1]: r[2] for r in conn.execute("PRAGMA table_info(trials)")}
+    assert columns["max_depth"] == "INTEGER" and columns["criterion"] == "TEXT"
+    for factor in (
+        "criterion",
+        "max_depth",
+        "min_samples_leaf",
+        "inner_folds",
+        "rule",
+        "prune_risk",
+    ):
+        assert factor in columns
+    fold_columns = {r[1] for r in conn.execute("PRAGMA table_info(folds)")}
+    for metric in (
+        "error",
+        "accuracy",
+        "balanced_accuracy",
+        "log_loss",
+        "brier",
+        "mse",
+        "mae",
+        "r2",
+        "n_leaves",
+        "depth",
+        "alpha",
+        "fit_seconds",
+        "test_fingerprint",
+    ):
+        assert metric in fold_columns
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+    assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    indexes = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='index'")}
+    assert "trials_study_status" in indexes
+
+
+def test_unlimited_depth_is_null_and_rows_are_complete(filled):
+    study, path = filled
+    conn = sqlite3.connect(path)
+    depths = {r[0] for r in conn.execute("SELECT DISTINCT max_depth FROM trials")}
+    assert depths == {None, 2}
+    assert conn.execute("SELECT COUNT(*) FROM trials WHERE status = 'done'").fetchone()[0] == 4
+    # 4 trials x 3 outer folds x 2 arms
+    assert conn.execute("SELECT COUNT(*) FROM folds").fetchone()[0] == 24
+
+
+def test_views_agree_with_the_folds_table(filled):
+    _, path = filled
+    conn = sqlite3.connect(path)
+    diff = conn.execute(
+        'SELECT trial_id, "repeat", fold, error, n_leaves FROM fold_differences'
+    ).fetchall()
+    assert len(diff) == 12
+    for trial_id, repeat, fold, d_error, d_leaves in diff:
+        rows = dict(
+            (arm, (error, leaves))
+            for arm, error, leaves in conn.execute(
+                'SELECT arm, error, n_leaves FROM folds WHERE trial_id=? AND "repeat"=? AND fold=?',
+                (trial_id, repeat, fold),
+            )
+        )
+        assert d_error == pytest.approx(rows["pruned"][0] - rows["unpruned"][0])
+        assert d_leaves == rows["pruned"][1] - rows["unpruned"][1]
+    summary = conn.execute("SELECT trial_id, arm, n_folds, error FROM arm_summary").fetchall()
+    assert len(summary) == 8
+    for trial_id, arm, n_folds, error in summary:
+        expected = conn.execute(
+            "SELECT AVG(error) FROM folds WHERE trial_id=? AND arm=?", (trial_id, arm)
+        ).fetchone()[0]
+        assert n_folds == 3 and error == pytest.approx(expected)
+
+
+def test_registering_again_adds_nothing_and_changed_seed_is_refused(filled):
+    study, path = filled
+    with ResultStore(path) as store:
+        store.register_study(study)
+        assert len(store.statuses(study.study_id)) == 4
+        changed = parse_study(STUDY.replace("seed = 4", "seed = 5"))
+        with pytest.raises(StoreError, match="seed 4 -> 5"):
+            store.register_study(changed)
+        changed = parse_study(STUDY.replace("folds = 3", "folds = 4"))
+        with pytest.raises(StoreError, match="outer 1x3 -> 1x4"):
+            store.register_study(changed)
+
+
+def test_newer_schema_and_foreign_files_are_refused(tmp_path):
+    newer = tmp_path / "newer.sqlite"
+    conn = sqlite3.connect(newer)
+    conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
+    conn.close()
+    with pytest.raises(StoreError, match="newer prunebench"):
+        ResultStore(newer)
+    foreign = tmp_path / "foreign.sqlite"
+    conn = sqlite3.connect(foreign)
+    conn.execute("CREATE TABLE recipes (x)")
+    conn.close()
+    with pytest.raises(StoreError, match="not a prunebench results database"):
+        ResultStore(foreign)
+    garbage = tmp_path / "garbage.sqlite"
+    garbage.write_bytes(b"this is not a database" * 100)
+    with pytest.raises(StoreError, match="cannot use this results database"):
+        ResultStore(garbage)
+    assert garbage.read_bytes() == b"this is not a database" * 100
+
+
+def test_second_writer_is_refused(tmp_path):
+    path = tmp_path / "r.sqlite"
+    with ResultStore(path, lock=True):
+        with pytest.raises(StoreError, match="being written by another 'prunebench conduct'"):
+            ResultStore(path, lock=True)
+    with ResultStore(path, lock=True):  # released on close
+        pass
+
+
+def test_readonly_store_refuses_writes(filled):
+    _, path = filled
+    with ResultStore(path, readonly=True) as store:
+        assert store.integrity() == "ok"
+        with pytest.raises(sqlite3.OperationalError):
+            store.db.conn.execute("DELETE FROM folds")
