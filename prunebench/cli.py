@@ -15,14 +15,6 @@ import click
 from . import __version__
 from .exceptions import PrunebenchError
 
-_DEMO_SETS = {
-    "breast_cancer": ("load_breast_cancer", "classification"),
-    "iris": ("load_iris", "classification"),
-    "wine": ("load_wine", "classification"),
-    "digits": ("load_digits", "classification"),
-    "diabetes": ("load_diabetes", "regression"),
-}
-
 
 def _reports_errors(command):
     """Turn prunebench's own errors into one line on stderr and an exit code."""
@@ -52,10 +44,9 @@ def main() -> None:
 @main.command()
 @click.option(
     "--dataset",
-    type=click.Choice(sorted(_DEMO_SETS)),
     default="breast_cancer",
     show_default=True,
-    help="A data set bundled with scikit-learn.",
+    help="Any data set of 'prunebench datasets'.",
 )
 @click.option(
     "--criterion", default=None, help="Growing criterion (default: gini / squared_error)."
@@ -73,13 +64,13 @@ def main() -> None:
 @click.option("--random-state", default=0, show_default=True, help="Seed of the trees.")
 @_reports_errors
 def demo(dataset, criterion, prune_risk, cv, rule, random_state) -> None:
-    """Fit a pruned tree on a bundled data set and print its CV curve and chosen alpha."""
-    import sklearn.datasets
-
+    """Fit a pruned tree on one data set and print its CV curve and chosen alpha."""
+    from .datasets import is_classification, load_dataset
     from .estimators import PrunedTreeClassifier, PrunedTreeRegressor
 
-    loader, task = _DEMO_SETS[dataset]
-    X, y = getattr(sklearn.datasets, loader)(return_X_y=True)
+    data = load_dataset(dataset)
+    X, y = data.X, data.y
+    task = "classification" if is_classification(data.task) else "regression"
     model_class = PrunedTreeClassifier if task == "classification" else PrunedTreeRegressor
     params = {"cv": cv, "rule": rule, "random_state": random_state}
     if criterion:
@@ -102,6 +93,57 @@ def demo(dataset, criterion, prune_risk, cv, rule, random_state) -> None:
         f"{model.get_n_leaves()} leaves (full tree {model.full_tree_.get_n_leaves()}), "
         f"depth {model.get_depth()}"
     )
+
+
+@main.command()
+@click.option("--json", "as_json", is_flag=True, help="Print a JSON list instead of a table.")
+@click.option(
+    "--manifest",
+    "manifests",
+    multiple=True,
+    type=click.Path(dir_okay=False),
+    help="Also list the data sets of this manifest (repeatable).",
+)
+@_reports_errors
+def datasets(as_json, manifests) -> None:
+    """List every data set a study can name, with task, rows, features, classes and source.
+
+    Simulated sets are shown at their default size (a study can set n_samples and seed).
+    """
+    import json
+
+    from .datasets import list_datasets, load_dataset, register_manifest
+
+    for manifest in manifests:
+        register_manifest(manifest)
+    rows = []
+    for info in list_datasets():
+        data = load_dataset(info.name)
+        rows.append(
+            {
+                "name": info.name,
+                "kind": info.kind,
+                "task": info.task,
+                "rows": int(data.X.shape[0]),
+                "features": int(data.X.shape[1]),
+                "classes": data.n_classes,
+                "source": info.source,
+                "licence": info.licence,
+                "citation": info.citation,
+                "params": data.params,
+            }
+        )
+    if as_json:
+        click.echo(json.dumps(rows, indent=2))
+        return
+    click.echo(f"{'name':<14} {'kind':<9} {'task':<10} {'rows':>6} {'feat.':>5} {'cls':>3}  source")
+    for r in rows:
+        source = r["source"] if len(r["source"]) <= 46 else r["source"][:45] + "…"
+        classes = "" if r["classes"] is None else r["classes"]
+        click.echo(
+            f"{r['name']:<14} {r['kind']:<9} {r['task']:<10} {r['rows']:>6} {r['features']:>5} "
+            f"{classes:>3}  {source}"
+        )
 
 
 def _calibrate(study) -> dict[str, float]:

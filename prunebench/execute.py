@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TextIO
 
-from .datasets import load_dataset
+from .datasets import load_dataset, register_manifest
 from .evaluate import GroupResult, evaluate_group
 from .exceptions import PrunebenchError
 from .store import ResultStore, utc_now
@@ -134,6 +134,7 @@ class _Task:
     group: TrialGroup
     dataset_name: str
     dataset_params: dict
+    manifest: str | None
     fingerprint: str
     seed: int
     repeats: int
@@ -154,6 +155,8 @@ def _run_task(task: _Task) -> _Outcome:
     """Evaluate one group; any exception becomes the outcome's error text."""
     started, t0 = utc_now(), time.perf_counter()
     try:
+        if task.manifest is not None:
+            register_manifest(task.manifest)
         data = load_dataset(task.dataset_name, **task.dataset_params)
         if data.fingerprint != task.fingerprint:
             raise RuntimeError(
@@ -220,6 +223,7 @@ def conduct(
                 group=g,
                 dataset_name=study.dataset_specs[g.dataset][0],
                 dataset_params=study.dataset_specs[g.dataset][1],
+                manifest=study.dataset_specs[g.dataset][2],
                 fingerprint=study.datasets[g.dataset].fingerprint,
                 seed=study.seed,
                 repeats=study.repeats,

@@ -39,7 +39,15 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .datasets import DatasetError, LoadedDataset, is_classification, load_dataset
+import numpy as np
+
+from .datasets import (
+    DatasetError,
+    LoadedDataset,
+    is_classification,
+    load_dataset,
+    register_manifest,
+)
 from .exceptions import PrunebenchError
 from .selection import parse_rule
 
@@ -142,7 +150,8 @@ class Study:
     datasets : dict
         Study key -> :class:`~prunebench.datasets.LoadedDataset`.
     dataset_specs : dict
-        Study key -> (registry name, parameters), for workers that load by name.
+        Study key -> (registry name, parameters, manifest path or None), for workers
+        that load by name.
     factors : dict
         Task ("classification"/"regression") -> factor -> levels.
     text : str
@@ -158,7 +167,7 @@ class Study:
     repeats: int
     folds: int
     datasets: dict[str, LoadedDataset]
-    dataset_specs: dict[str, tuple[str, dict]]
+    dataset_specs: dict[str, tuple[str, dict, str | None]]
     factors: dict[str, dict[str, list]]
     text: str
     path: Path | None = None
@@ -333,20 +342,40 @@ def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str 
     return levels
 
 
-def _datasets(check: _Checker, value: object) -> list[tuple[str, str, dict]]:
+def _datasets(
+    check: _Checker, value: object, base: Path
+) -> list[tuple[str, str, dict, str | None]]:
     if not isinstance(value, list) or not value:
         raise check.fail("datasets", "must be a non-empty list of dataset names or tables")
     out = []
     for item in value:
+        manifest = None
         if isinstance(item, str):
             name, params = item, {}
         elif isinstance(item, dict):
-            if not isinstance(item.get("name"), str):
+            params = {k: v for k, v in item.items() if k not in ("name", "manifest")}
+            if "manifest" in item:
+                if not isinstance(item["manifest"], str):
+                    raise check.fail("datasets", "a dataset's manifest must be a file path")
+                manifest = os.path.normpath(base / item["manifest"])
+                try:
+                    entries = register_manifest(manifest)
+                except DatasetError as err:
+                    raise check.fail("datasets", str(err)) from None
+                names = [e.name for e in entries]
+                name = item.get("name", names[0] if len(names) == 1 else None)
+                if name not in names:
+                    raise check.fail(
+                        "datasets",
+                        f"manifest {manifest} describes {', '.join(names)}; "
+                        'say which with name = "..."',
+                    )
+            elif isinstance(item.get("name"), str):
+                name = item["name"]
+            else:
                 raise check.fail(
-                    "datasets", 'every dataset table needs name = "..."', line_key="datasets"
+                    "datasets", 'every dataset table needs name = "..." or manifest = "..."'
                 )
-            params = {k: v for k, v in item.items() if k != "name"}
-            name = item["name"]
         else:
             raise check.fail("datasets", f"{item!r} is neither a dataset name nor a table")
         key = (
@@ -354,9 +383,9 @@ def _datasets(check: _Checker, value: object) -> list[tuple[str, str, dict]]:
             if not params
             else f"{name}({', '.join(f'{k}={v}' for k, v in sorted(params.items()))})"
         )
-        if key in [k for k, _, _ in out]:
+        if key in [k for k, *_ in out]:
             raise check.fail("datasets", f"names {key!r} twice")
-        out.append((key, name, params))
+        out.append((key, name, params, manifest))
     return out
 
 
@@ -441,15 +470,16 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
                 f"factors.{key}", f"is not a factor; the factors are {', '.join(FACTORS)}"
             )
 
-    entries = _datasets(check, doc["datasets"])
+    base = base or Path(".")
+    entries = _datasets(check, doc["datasets"], base)
     loaded: dict[str, LoadedDataset] = {}
-    specs: dict[str, tuple[str, dict]] = {}
-    for key, ds_name, params in entries:
+    specs: dict[str, tuple[str, dict, str | None]] = {}
+    for key, ds_name, params, manifest in entries:
         try:
             loaded[key] = load_dataset(ds_name, **params)
         except DatasetError as err:
             raise check.fail("datasets", str(err)) from None
-        specs[key] = (ds_name, params)
+        specs[key] = (ds_name, params, manifest)
     tasks = sorted(
         {"classification" if is_classification(d.task) else "regression" for d in loaded.values()}
     )
@@ -498,10 +528,14 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
             )
         if task == "classification":
             if data.smallest_class < folds:
+                labels, counts = np.unique(data.y, return_counts=True)
+                where = f"dataset {key!r}"
+                if data.info.file:
+                    where += f" (column {data.info.target!r} of {data.info.file})"
                 raise check.fail(
                     "outer.folds",
-                    f"{folds} folds is more than the {data.smallest_class} rows of "
-                    f"the smallest class of dataset {key!r}",
+                    f"{folds} folds is more than the {data.smallest_class} rows of class "
+                    f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
                 )
             # the inner CV runs on the outer-training part: about (folds-1)/folds of it
             inner_rows = data.smallest_class * (folds - 1) // folds
@@ -517,7 +551,6 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
                     f"{too_many[0]} inner folds is more than the about {inner_rows} "
                     f"rows of the smallest class of dataset {key!r} in an outer-training part",
                 )
-    base = base or Path(".")
     return Study(
         name=name,
         description=description,

@@ -35,6 +35,14 @@ class Dataset:
         Where the data comes from, under which terms, and whom to cite.
     params : dict
         Default loader parameters (simulations: size and seed).
+    file : str or None
+        The data file, for data sets read from a file.
+    target : str or None
+        The target column, for data sets read from a file.
+    expected : dict
+        Published counts (``rows``, ``features``, ``classes``) a vendored file must match.
+    kind : str
+        ``"bundled"`` (ships with scikit-learn), ``"vendored"``, ``"simulated"`` or ``"file"``.
     """
 
     name: str
@@ -44,6 +52,10 @@ class Dataset:
     licence: str
     citation: str
     params: dict = field(default_factory=dict)
+    file: str | None = None
+    target: str | None = None
+    expected: dict = field(default_factory=dict)
+    kind: str = "file"
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,12 +100,15 @@ class LoadedDataset:
 _REGISTRY: dict[str, Dataset] = {}
 
 
-def register(dataset: Dataset) -> Dataset:
-    """Add a data set to the registry (its name must be new).
+def register(dataset: Dataset, *, replace: bool = False) -> Dataset:
+    """Add a data set to the registry.
 
     Parameters
     ----------
     dataset : Dataset
+    replace : bool, default=False
+        Allow replacing an entry of the same name read from the same file (a
+        manifest registered again); a name already taken otherwise is an error.
 
     Returns
     -------
@@ -101,8 +116,14 @@ def register(dataset: Dataset) -> Dataset:
     """
     if dataset.task not in TASKS:
         raise DatasetError(f"dataset {dataset.name!r}: task must be one of {TASKS}")
-    if dataset.name in _REGISTRY:
-        raise DatasetError(f"dataset {dataset.name!r} is registered twice")
+    old = _REGISTRY.get(dataset.name)
+    if old is not None:
+        if not (replace and old.file is not None and old.file == dataset.file):
+            where = f" (from {old.file})" if old.file else ""
+            raise DatasetError(
+                f"dataset name {dataset.name!r} is taken already{where}; give it another name"
+            )
+        _load_cached.cache_clear()
     _REGISTRY[dataset.name] = dataset
     return dataset
 
@@ -178,6 +199,8 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
         )
     params = {**info.params, **dict(items)}
     X, y = info.loader(**params)
+    if len(y) == 0:
+        raise DatasetError(f"dataset {name!r} has no rows")
     X = np.ascontiguousarray(X, dtype=np.float64)
     y = np.asarray(y)
     if info.task == "regression":
@@ -254,5 +277,6 @@ for _name, _task, _function, _citation in [
             licence="bundled with scikit-learn (BSD-3-Clause distribution); original terms of the "
             "source apply",
             citation=_citation,
+            kind="bundled",
         )
     )
