@@ -275,5 +275,352 @@ def conduct(study_file, database, workers, retry_failed) -> None:
     click.echo("(test metric and leaves: means over every configuration and outer fold)")
 
 
+CAUTION = (
+    "Caution: a default chosen on benchmark data is a starting point. Validate it on your "
+    "own data, and where the trees steer decisions about people (credit, health, insurance) "
+    "follow your organisation's model-risk, fairness and legal review."
+)
+
+
+def _results_options(command):
+    """The options every command over a results database shares."""
+    command = click.option(
+        "--study", default=None, help="Study name, when the database holds several."
+    )(command)
+    command = click.option(
+        "--db",
+        "database",
+        required=True,
+        type=click.Path(dir_okay=False, exists=False),
+        help="The results database.",
+    )(command)
+    return command
+
+
+def _output_options(command):
+    command = click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")(command)
+    command = click.option("--json", "as_json", is_flag=True, help="Print JSON.")(command)
+    return command
+
+
+def _load_folds(database, study):
+    from .stats import load_folds
+    from .store import ResultStore
+
+    with ResultStore(database, readonly=True) as store:
+        return load_folds(store, study)
+
+
+def _records(frame) -> list[dict]:
+    import json
+
+    return json.loads(frame.to_json(orient="records"))
+
+
+def _emit(frame, as_json: bool, as_csv: bool) -> bool:
+    """Print a frame as JSON or CSV if asked; True if printed."""
+    import json
+
+    if as_json and as_csv:
+        raise click.UsageError("give --json or --csv, not both")
+    if as_json:
+        click.echo(json.dumps(_records(frame), indent=2))
+        return True
+    if as_csv:
+        click.echo(frame.to_csv(index=False), nl=False)
+        return True
+    return False
+
+
+def _fmt(value, spec: str) -> str:
+    if value is None or value != value:
+        return "-"
+    return format(value, spec)
+
+
+def _number_spec(scale: float) -> str:
+    """Fixed decimals for rates and small losses, significant digits for large ones."""
+    return ".3f" if abs(scale) < 10 else ".4g"
+
+
+def _say(text: str, indent: str = "") -> None:
+    """Print a note wrapped to the 100 columns the tables fit in."""
+    import textwrap
+
+    click.echo(textwrap.fill(text, width=100, initial_indent=indent, subsequent_indent=indent))
+
+
+@main.command()
+@_results_options
+@click.option(
+    "--metric",
+    default=None,
+    help="error, accuracy, balanced_accuracy, log_loss, brier (classification) or "
+    "mse, mae, r2 (regression). Default: error / mse.",
+)
+@_output_options
+@_reports_errors
+def compare(database, study, metric, as_json, as_csv) -> None:
+    """Pruned against unpruned per dataset and configuration, with corrected 95% CIs.
+
+    The difference is pruned - unpruned on each outer fold; its interval and p-value come
+    from the corrected resampled t (Nadeau & Bengio 2003), which allows for the overlap of
+    training sets in repeated CV. The naive interval and Holm-adjusted p-values are in the
+    JSON and CSV output.
+    """
+    from .stats import HIGHER_IS_BETTER, comparison, config_label
+
+    table = comparison(_load_folds(database, study), metric)
+    columns = [
+        "dataset",
+        "task",
+        "criterion",
+        "max_depth",
+        "min_samples_leaf",
+        "inner_folds",
+        "rule",
+        "prune_risk",
+        "metric",
+        "mean_pruned",
+        "mean_unpruned",
+        "diff",
+        "ci_low",
+        "ci_high",
+        "p_value",
+        "p_holm",
+        "naive_ci_low",
+        "naive_ci_high",
+        "naive_p_value",
+        "verdict",
+        "leaves_pruned",
+        "leaves_unpruned",
+        "leaves_saved",
+        "leaves_saved_ci_low",
+        "leaves_saved_ci_high",
+        "n_folds",
+    ]
+    table = table[columns]
+    if _emit(table, as_json, as_csv):
+        return
+    for m, rows in table.groupby("metric", sort=False):
+        better = "higher" if m in HIGHER_IS_BETTER else "lower"
+        spec = _number_spec(rows["mean_unpruned"].abs().median())
+        _say(
+            f"metric: {m} ({better} is better); diff = pruned - unpruned, mean over "
+            f"{int(rows['n_folds'].iloc[0])} outer folds; 95% CI of diff by corrected "
+            "resampled t; saved = leaves saved by pruning (mean per fold)"
+        )
+        click.echo(
+            f"{'dataset':<13} {'configuration':<27} {'pruned':>7} {'unprun.':>7} "
+            f"{'diff':>7} {'95% CI of diff':>15} {'p':>4} {'better':<6} {'saved':>5}"
+        )
+        for _, r in rows.iterrows():
+            verdict = {"pruned better": "pruned", "unpruned better": "unpr."}.get(r["verdict"], "-")
+            ci = f"[{_fmt(r['ci_low'], '+' + spec)},{_fmt(r['ci_high'], '+' + spec)}]"
+            click.echo(
+                f"{r['dataset'][:13]:<13} {config_label(r)[:27]:<27} "
+                f"{_fmt(r['mean_pruned'], spec):>7} {_fmt(r['mean_unpruned'], spec):>7} "
+                f"{_fmt(r['diff'], '+' + spec):>7} {ci:>15} {_fmt(r['p_value'], '4.2f'):>4} "
+                f"{verdict:<6} {_fmt(r['leaves_saved'], '5.1f'):>5}"
+            )
+        naive = ((rows["naive_ci_high"] < 0) | (rows["naive_ci_low"] > 0)).sum()
+        corrected = ((rows["ci_high"] < 0) | (rows["ci_low"] > 0)).sum()
+        width = (rows["ci_high"] - rows["ci_low"]) / (rows["naive_ci_high"] - rows["naive_ci_low"])
+        _say(
+            f"{len(rows)} rows: {corrected} differences significant at 5% with the corrected t, "
+            f"{naive} with the naive t (folds treated as independent), whose intervals are "
+            f"{width.median():.1f}x narrower (median)."
+        )
+        click.echo("")
+
+
+@main.command()
+@_results_options
+@click.option("--metric", default=None, help="As for compare. Default: error / mse.")
+@click.option("--alpha", default=0.05, show_default=True, help="Significance level.")
+@_output_options
+@_reports_errors
+def rank(database, study, metric, alpha, as_json, as_csv) -> None:
+    """Rank configurations across datasets: mean ranks, Friedman test, critical difference.
+
+    Each configuration's pruned tree is ranked on every dataset (1 = best); each distinct
+    unpruned tree takes part as a configuration of its own. Configurations whose mean rank
+    is within Nemenyi's critical difference of the best are not significantly worse.
+    """
+    import pandas as pd
+
+    from .stats import ROPE, config_label, ranking
+
+    results = ranking(_load_folds(database, study), metric, alpha)
+    if as_json or as_csv:
+        frames = []
+        for res in results:
+            t = (
+                res["table"]
+                .drop(columns=["config"])
+                .assign(
+                    family=res["family"],
+                    metric=res["metric"],
+                    n_datasets=len(res["datasets"]),
+                    friedman_chi2=res["friedman"]["chi2"] if res["friedman"] else None,
+                    friedman_p=res["friedman"]["p_chi2"] if res["friedman"] else None,
+                    iman_davenport_f=res["friedman"]["ff"] if res["friedman"] else None,
+                    iman_davenport_p=res["friedman"]["p_ff"] if res["friedman"] else None,
+                    critical_difference=res["cd"],
+                )
+            )
+            frames.append(t)
+        _emit(pd.concat(frames, ignore_index=True), as_json, as_csv)
+        return
+    for res in results:
+        f, n = res["friedman"], len(res["datasets"])
+        _say(
+            f"{res['family']}: {len(res['table'])} configurations on {n} datasets, "
+            f"metric {res['metric']} (rank 1 = best)"
+        )
+        if f:
+            _say(
+                f"Friedman chi2 = {f['chi2']:.2f} (p = {f['p_chi2']:.3g}); Iman-Davenport F = "
+                f"{f['ff']:.2f} with ({f['df1']}, {f['df2']}) df (p = {f['p_ff']:.3g}); "
+                f"Nemenyi critical difference at {alpha:g} = {res['cd']:.2f} ranks"
+            )
+        else:
+            _say("tests across datasets need two or more datasets of the task")
+        click.echo(
+            f"{'configuration':<29} {'mean rank':>9} {'W/T/L':>8} "
+            f"{'mean ' + res['metric']:>10} {'leaves':>7} {'ok':>3} {'Wilcoxon':>8} "
+            f"{'P(pr+)':>6} {'P(=)':>5} {'P(un+)':>6}"
+        )
+        for _, r in res["table"].iterrows():
+            wtl = f"{r['wins']}/{r['ties']}/{r['losses']}"
+            click.echo(
+                f"{config_label(r)[:29]:<29} {r['mean_rank']:>9.2f} {wtl:>8} "
+                f"{_fmt(r['mean_metric'], '10.4g'):>10} {r['mean_leaves']:>7.1f} "
+                f"{'yes' if r['not_worse'] else 'no':>3} {_fmt(r.get('wilcoxon_p'), '8.3f'):>8} "
+                f"{_fmt(r.get('p_pruned_better'), '6.2f'):>6} "
+                f"{_fmt(r.get('p_equivalent'), '5.2f'):>5} "
+                f"{_fmt(r.get('p_unpruned_better'), '6.2f'):>6}"
+            )
+        _say(
+            "ok = not significantly worse than the best (Nemenyi). W/T/L: datasets where the "
+            "configuration's mean beats, equals, trails the best configuration's. Wilcoxon: "
+            "signed-rank p of pruned vs its unpruned tree across datasets; P(pr+), P(=), P(un+): Bayesian "
+            "signed-rank probabilities that pruning is better, practically equal (within "
+            f"{ROPE:g}{' relative' if res['family'] == 'regression' else ''}), or worse."
+        )
+        click.echo("")
+
+
+@main.command()
+@_results_options
+@click.option("--alpha", default=0.05, show_default=True, help="Significance level.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+@_reports_errors
+def recommend(database, study, alpha, as_json) -> None:
+    """Propose a default configuration for a team standard, with its evidence.
+
+    Among the configurations not significantly worse than the best (Nemenyi), the best
+    mean rank wins and ties go to smaller trees. Shows its regret on each dataset (its
+    loss minus the best configuration's, with a corrected CI) and prints the choice as an
+    estimator and a study-file fragment.
+    """
+    import json
+
+    from .stats import config_label, recommendation
+
+    recs = recommendation(_load_folds(database, study), alpha)
+    if as_json:
+        out = []
+        for r in recs:
+            out.append(
+                {
+                    "family": r["family"],
+                    "metric": r["metric"],
+                    "config": r["config"],
+                    "mean_rank": r["mean_rank"],
+                    "mean_leaves": r["mean_leaves"],
+                    "mean_regret": r["mean_regret"],
+                    "worst_regret": r["worst_regret"],
+                    "regret": _records(r["regret"]),
+                    "estimator": _estimator_block(r),
+                    "study_fragment": _study_fragment(r),
+                    "caution": CAUTION,
+                }
+            )
+        click.echo(json.dumps(out, indent=2, default=str))
+        return
+    for r in recs:
+        ranked = r["ranking"]
+        click.echo(f"== {r['family']}: recommended default (metric {r['metric']})")
+        _say(
+            f"{config_label(r['config'])}: mean rank {r['mean_rank']:.2f} of "
+            f"{len(ranked['table'])} configurations on {len(ranked['datasets'])} datasets, "
+            f"{r['mean_leaves']:.1f} leaves on average",
+            "   ",
+        )
+        _say(
+            f"regret ({r['metric']} above the best configuration on each dataset): "
+            f"mean {r['mean_regret']:.4g}, worst {r['worst_regret']:.4g}",
+            "   ",
+        )
+        spec = _number_spec(ranked["means"].abs().median().median())
+        click.echo(f"   {'dataset':<22} {'regret':>8} {'95% CI':>17}  best configuration there")
+        for _, g in r["regret"].iterrows():
+            ci = f"[{_fmt(g['ci_low'], '+' + spec)},{_fmt(g['ci_high'], '+' + spec)}]"
+            mark = " (loses)" if g["loses"] else ""
+            click.echo(
+                f"   {g['dataset'][:22]:<22} {_fmt(g['regret'], spec):>8} {ci:>17}  "
+                f"{g['best'][:34]}{mark}"
+            )
+        losing = r["regret"][r["regret"]["loses"]]
+        if len(losing):
+            click.echo(f"   loses significantly on: {', '.join(losing['dataset'])}")
+        click.echo("\n   as an estimator:\n")
+        click.echo("\n".join("     " + line for line in _estimator_block(r).splitlines()))
+        click.echo("\n   as a study-file fragment:\n")
+        click.echo("\n".join("     " + line for line in _study_fragment(r).splitlines()))
+        click.echo("")
+    _say(CAUTION)
+
+
+def _estimator_block(rec: dict) -> str:
+    c = rec["config"]
+    regression = rec["family"] == "regression"
+    name = "PrunedTreeRegressor" if regression else "PrunedTreeClassifier"
+    depth = "None" if c["max_depth"] is None else int(c["max_depth"])
+    if c["rule"] == "unpruned":
+        tree = "DecisionTreeRegressor" if regression else "DecisionTreeClassifier"
+        return (
+            f"from sklearn.tree import {tree}\n\nmodel = {tree}(\n"
+            f"    criterion={c['criterion']!r},\n    max_depth={depth},\n"
+            f"    min_samples_leaf={int(c['min_samples_leaf'])},\n)  # no pruning won"
+        )
+    return (
+        f"from prunebench import {name}\n\nmodel = {name}(\n"
+        f"    criterion={c['criterion']!r},\n    max_depth={depth},\n"
+        f"    min_samples_leaf={int(c['min_samples_leaf'])},\n"
+        f"    prune_risk={c['prune_risk']!r},\n    cv={int(c['inner_folds'])},\n"
+        f"    rule={c['rule']!r},\n)"
+    )
+
+
+def _study_fragment(rec: dict) -> str:
+    c = rec["config"]
+    depth = '"none"' if c["max_depth"] is None else int(c["max_depth"])
+    lines = [
+        f"[factors.{rec['family']}]",
+        f'criterion = ["{c["criterion"]}"]',
+        f"max_depth = [{depth}]",
+        f"min_samples_leaf = [{int(c['min_samples_leaf'])}]",
+    ]
+    if c["rule"] != "unpruned":
+        lines += [
+            f"inner_folds = [{int(c['inner_folds'])}]",
+            f'rule = ["{c["rule"]}"]',
+            f'prune_risk = ["{c["prune_risk"]}"]',
+        ]
+    return "\n".join(lines)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()
