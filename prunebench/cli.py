@@ -504,8 +504,9 @@ def rank(database, study, metric, alpha, as_json, as_csv) -> None:
         _say(
             "ok = not significantly worse than the best (Nemenyi). W/T/L: datasets where the "
             "configuration's mean beats, equals, trails the best configuration's. Wilcoxon: "
-            "signed-rank p of pruned vs its unpruned tree across datasets; P(pr+), P(=), P(un+): Bayesian "
-            "signed-rank probabilities that pruning is better, practically equal (within "
+            "signed-rank p of pruned vs its unpruned tree across datasets; P(pr+), P(=), "
+            "P(un+): Bayesian signed-rank probabilities that pruning is better, practically "
+            "equal (within "
             f"{ROPE:g}{' relative' if res['family'] == 'regression' else ''}), or worse."
         )
         click.echo("")
