@@ -42,6 +42,7 @@ __all__ = [
     "corrected_ttest",
     "critical_difference",
     "default_metric",
+    "friedman_from_ranks",
     "friedman_test",
     "holm",
     "load_folds",
@@ -182,9 +183,25 @@ def friedman_test(scores: np.ndarray) -> dict:
         ``mean_ranks``, ``chi2``, ``p_chi2``, ``ff``, ``p_ff``, ``df1``, ``df2``, ``n``, ``k``.
     """
     scores = np.asarray(scores, dtype=float)
-    n, k = scores.shape
     ranks = np.apply_along_axis(sps.rankdata, 1, scores)
-    mean_ranks = ranks.mean(axis=0)
+    return friedman_from_ranks(ranks.mean(axis=0), scores.shape[0])
+
+
+def friedman_from_ranks(mean_ranks, n: int) -> dict:
+    """Friedman and Iman-Davenport statistics from mean ranks over ``n`` data sets.
+
+    Parameters
+    ----------
+    mean_ranks : array-like of shape (k,)
+    n : int
+
+    Returns
+    -------
+    dict
+        As :func:`friedman_test`.
+    """
+    mean_ranks = np.asarray(mean_ranks, dtype=float)
+    k = mean_ranks.size
     chi2 = 12 * n / (k * (k + 1)) * (np.sum(mean_ranks**2) - k * (k + 1) ** 2 / 4)
     df1, df2 = k - 1, (k - 1) * (n - 1)
     denominator = n * (k - 1) - chi2
@@ -639,7 +656,9 @@ def recommendation(folds: pd.DataFrame, alpha: float = 0.05) -> list[dict]:
             best_config = (sign * row).idxmin()
             chosen_folds = _config_folds(folds, dataset, config, m)
             best_folds = _config_folds(folds, dataset, best_config, m)
-            paired = chosen_folds.join(best_folds, lsuffix="_c", rsuffix="_b", how="inner")
+            paired = chosen_folds.merge(
+                best_folds, left_index=True, right_index=True, suffixes=("_c", "_b")
+            )
             t = corrected_ttest(
                 sign * (paired[f"{m}_c"] - paired[f"{m}_b"]),
                 paired["n_train_c"],
