@@ -275,11 +275,10 @@ def conduct(study_file, database, workers, retry_failed) -> None:
     click.echo("(test metric and leaves: means over every configuration and outer fold)")
 
 
-CAUTION = (
-    "Caution: a default chosen on benchmark data is a starting point. Validate it on your "
-    "own data, and where the trees steer decisions about people (credit, health, insurance) "
-    "follow your organisation's model-risk, fairness and legal review."
-)
+def _caution() -> str:
+    from .report import CAUTION
+
+    return "Caution: " + CAUTION
 
 
 def _results_options(command):
@@ -545,7 +544,7 @@ def recommend(database, study, alpha, as_json) -> None:
                     "regret": _records(r["regret"]),
                     "estimator": _estimator_block(r),
                     "study_fragment": _study_fragment(r),
-                    "caution": CAUTION,
+                    "caution": _caution(),
                 }
             )
         click.echo(json.dumps(out, indent=2, default=str))
@@ -581,7 +580,44 @@ def recommend(database, study, alpha, as_json) -> None:
         click.echo("\n   as a study-file fragment:\n")
         click.echo("\n".join("     " + line for line in _study_fragment(r).splitlines()))
         click.echo("")
-    _say(CAUTION)
+    _say(_caution())
+
+
+@main.command()
+@_results_options
+@click.option(
+    "--out",
+    required=True,
+    type=click.Path(file_okay=False),
+    help="Folder for the figures (created if missing).",
+)
+@_reports_errors
+def figures(database, study, out) -> None:
+    """Draw the summary figures of a study as PNG and SVG files."""
+    from .plots import write_figures
+    from .stats import load_folds
+    from .store import ResultStore
+
+    with ResultStore(database, readonly=True) as store:
+        written = write_figures(store, load_folds(store, study), out)
+    click.echo(f"{len(written)} files written to {out}")
+
+
+@main.command()
+@_results_options
+@click.option(
+    "--out", required=True, type=click.Path(dir_okay=False), help="The HTML file to write."
+)
+@_reports_errors
+def report(database, study, out) -> None:
+    """Write one self-contained HTML report: figures, tables, study file, caution.
+
+    The file embeds everything it shows, opens offline, and is written whole or not at all.
+    """
+    from .report import write_report
+
+    path = write_report(database, out, study)
+    click.echo(f"report written to {path} ({path.stat().st_size // 1024} KiB)")
 
 
 def _estimator_block(rec: dict) -> str:

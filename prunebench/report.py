@@ -1,0 +1,260 @@
+"""One self-contained HTML report of a study: figures, tables, the study file, caution.
+
+Everything is embedded (figures as base64 PNG, styles inline), so the file opens
+offline and can be mailed or archived as it is.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+from pathlib import Path
+
+import matplotlib.pyplot as plt
+import pandas as pd
+
+from . import __version__
+from .plots import FIGURES, build_figures, example_curves
+from .stats import comparison, config_label, load_folds, recommendation
+from .store import ResultStore, utc_now
+
+__all__ = ["CAUTION", "build_report", "write_report"]
+
+CAUTION = (
+    "A default chosen on benchmark data is a starting point. Validate it on your own data, and "
+    "where the trees steer decisions about people (credit, health, insurance) follow your "
+    "organisation's model-risk, fairness and legal review."
+)
+
+_STYLE = """
+body { font-family: Georgia, 'DejaVu Serif', serif; margin: 0; color: #222; background: #fbfaf7; }
+header { background: #2e4a3f; color: #f4f1e8; padding: 18px 32px; }
+header h1 { margin: 0 0 4px 0; font-size: 26px; }
+main { padding: 8px 32px 40px 32px; max-width: 1280px; }
+h2 { border-bottom: 2px solid #c8b98a; padding-bottom: 3px; margin-top: 34px; color: #2e4a3f; }
+table { border-collapse: collapse; font-family: 'DejaVu Sans Mono', monospace; font-size: 12px; }
+th, td { border-bottom: 1px solid #ddd6c3; padding: 3px 8px; text-align: right; }
+th { background: #efe9da; }
+td.l, th.l { text-align: left; }
+.caution { background: #fff3d6; border-left: 6px solid #b7791f; padding: 10px 16px; }
+.good { color: #1d6b3a; } .bad { color: #9b2c2c; }
+pre { background: #f1eee6; padding: 10px; overflow-x: auto; font-size: 12px; }
+figure { margin: 18px 0; } figcaption { font-size: 13px; color: #555; }
+img { max-width: 100%; border: 1px solid #ddd6c3; background: white; }
+.scroll { max-height: 420px; overflow-y: auto; display: inline-block; }
+"""
+
+
+def _table(frame: pd.DataFrame, left: tuple = ()) -> str:
+    head = "".join(
+        f'<th class="{"l" if c in left else ""}">{html.escape(str(c))}</th>' for c in frame.columns
+    )
+    body = []
+    for _, row in frame.iterrows():
+        cells = []
+        for c in frame.columns:
+            v = row[c]
+            text = (
+                ""
+                if v is None or (isinstance(v, float) and v != v)
+                else (f"{v:.4g}" if isinstance(v, float) else str(v))
+            )
+            cls = "l" if c in left else ""
+            if c == "verdict":
+                cls += " good" if v == "pruned better" else " bad" if v == "unpruned better" else ""
+            cells.append(f'<td class="{cls.strip()}">{html.escape(text)}</td>')
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f"<table><tr>{head}</tr>{''.join(body)}</table>"
+
+
+def _png(fig) -> str:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=100)
+    plt.close(fig)
+    return base64.b64encode(buffer.getvalue()).decode()
+
+
+def build_report(store: ResultStore, study: str | None = None) -> str:
+    """The report of a study as one HTML string.
+
+    Parameters
+    ----------
+    store : ResultStore
+    study : str, optional
+        Study name, when the database holds several.
+
+    Returns
+    -------
+    str
+    """
+    folds = load_folds(store, study)
+    info = store.query(
+        "SELECT * FROM studies WHERE name = ?"
+        if study
+        else "SELECT * FROM studies ORDER BY created LIMIT 1",
+        [study] if study else [],
+    )[0]
+    sid = info["study_id"]
+    counts = store.query(
+        "SELECT status, COUNT(*) AS n FROM trials WHERE study_id = ? GROUP BY status", [sid]
+    )
+    counts = {c["status"]: c["n"] for c in counts}
+    datasets = pd.DataFrame(
+        store.query(
+            "SELECT DISTINCT d.name, d.task, d.rows, d.features, d.classes, d.source, d.licence "
+            "FROM datasets d JOIN trials t USING (dataset_id) WHERE t.study_id = ? ORDER BY d.name",
+            [sid],
+        )
+    )
+    env = pd.DataFrame(
+        store.query(
+            "SELECT recorded, python, numpy, scikit_learn, pandas, prunebench, platform "
+            "FROM environments WHERE study_id = ? ORDER BY recorded DESC LIMIT 5",
+            [sid],
+        )
+    )
+    failed = store.query(
+        "SELECT t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.rule, t.error "
+        "FROM trials t JOIN datasets d USING (dataset_id) WHERE t.study_id = ? AND "
+        "t.status = 'failed'",
+        [sid],
+    )
+    recs = recommendation(folds)
+    table = comparison(folds)
+    figures = build_figures(folds, example_curves(store, folds))
+
+    parts = [
+        f'<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
+        f"<title>prunebench report: {html.escape(info['name'])}</title>"
+        f"<style>{_STYLE}</style></head><body>"
+    ]
+    parts.append(
+        f"<header><h1>Study {html.escape(info['name'])}</h1>"
+        f"<div>{html.escape(info['description'])}</div></header><main>"
+    )
+    parts.append(f'<p class="caution"><b>Caution.</b> {html.escape(CAUTION)}</p>')
+    parts.append(
+        f"<p>Seed {info['seed']}; outer CV {info['outer_repeats']} repeats × "
+        f"{info['outer_folds']} folds; trials done {counts.get('done', 0)}, failed "
+        f"{counts.get('failed', 0)}, pending {counts.get('pending', 0)}. Report made "
+        f"{utc_now()} by prunebench {__version__}.</p>"
+    )
+
+    parts.append("<h2>Recommended default</h2>")
+    for r in recs:
+        regret = r["regret"].rename(columns={"regret": f"regret ({r['metric']})"})
+        parts.append(
+            f"<h3>{r['family']}: {html.escape(config_label(r['config']))}</h3>"
+            f"<p>Mean rank {r['mean_rank']:.2f} of {len(r['ranking']['table'])} configurations on "
+            f"{len(r['ranking']['datasets'])} datasets; {r['mean_leaves']:.1f} leaves on average; "
+            f"regret mean {r['mean_regret']:.4g}, worst {r['worst_regret']:.4g} "
+            f"({r['metric']} above the best configuration on each dataset, corrected 95% CI).</p>"
+            + _table(regret, left=("dataset", "best"))
+        )
+    parts.append("<h2>Configurations ranked across datasets</h2>")
+    for r in recs:
+        ranked = r["ranking"]
+        f = ranked["friedman"]
+        test = (
+            f"Friedman χ² = {f['chi2']:.2f} (p = {f['p_chi2']:.3g}), Iman–Davenport F = "
+            f"{f['ff']:.2f} (p = {f['p_ff']:.3g}), Nemenyi critical difference "
+            f"{ranked['cd']:.2f}."
+            if f
+            else "Fewer than two datasets: no test across them."
+        )
+        view = ranked["table"].head(20)[
+            [
+                "label",
+                "mean_rank",
+                "wins",
+                "ties",
+                "losses",
+                "mean_metric",
+                "mean_leaves",
+                "not_worse",
+            ]
+        ]
+        view = view.rename(
+            columns={
+                "label": "configuration",
+                "mean_metric": f"mean {ranked['metric']}",
+                "not_worse": "not worse than best",
+            }
+        )
+        parts.append(
+            f"<h3>{r['family']} (metric {ranked['metric']})</h3><p>{test}</p>"
+            + _table(view, left=("configuration",))
+        )
+    parts.append("<h2>Figures</h2>")
+    for name, fig in figures.items():
+        parts.append(
+            f'<figure><img alt="{html.escape(FIGURES[name])}" '
+            f'src="data:image/png;base64,{_png(fig)}"><figcaption>'
+            f"{html.escape(FIGURES[name])}</figcaption></figure>"
+        )
+    parts.append(
+        "<h2>Pruned against unpruned, per dataset and configuration</h2>"
+        "<p>diff = pruned − unpruned; CI by corrected resampled t (Nadeau &amp; Bengio "
+        "2003); the naive CI treats folds as independent and is too narrow.</p>"
+    )
+    view = table[
+        [
+            "dataset",
+            "criterion",
+            "max_depth",
+            "min_samples_leaf",
+            "inner_folds",
+            "rule",
+            "prune_risk",
+            "metric",
+            "mean_pruned",
+            "mean_unpruned",
+            "diff",
+            "ci_low",
+            "ci_high",
+            "naive_ci_low",
+            "naive_ci_high",
+            "p_value",
+            "p_holm",
+            "verdict",
+            "leaves_saved",
+        ]
+    ]
+    parts.append(
+        '<div class="scroll">'
+        + _table(view, left=("dataset", "criterion", "rule", "prune_risk", "metric", "verdict"))
+        + "</div>"
+    )
+    parts.append("<h2>Datasets</h2>" + _table(datasets, left=("name", "task", "source", "licence")))
+    parts.append(f"<h2>Failed trials ({len(failed)})</h2>")
+    if failed:
+        for f in failed:
+            parts.append(
+                f"<details><summary>{html.escape(f['dataset'])} {html.escape(f['criterion'])}"
+                f" depth {f['max_depth']} {html.escape(f['rule'])}</summary><pre>"
+                f"{html.escape(f['error'] or '')}</pre></details>"
+            )
+    else:
+        parts.append("<p>None.</p>")
+    parts.append("<h2>Study file</h2><pre>" + html.escape(info["study_text"]) + "</pre>")
+    parts.append("<h2>Environment</h2>" + _table(env, left=tuple(env.columns)))
+    parts.append("</main></body></html>")
+    return "".join(parts)
+
+
+def write_report(database: str | Path, out: str | Path, study: str | None = None) -> Path:
+    """Write the report of a study to ``out`` (written whole, or not at all).
+
+    Returns
+    -------
+    Path
+    """
+    with ResultStore(database, readonly=True) as store:
+        text = build_report(store, study)
+    out = Path(out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    partial = out.with_name(out.name + ".partial")
+    partial.write_text(text, encoding="utf-8")
+    partial.replace(out)
+    return out
