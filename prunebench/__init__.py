@@ -8,6 +8,7 @@ The pruning engine (:mod:`prunebench.pruning`), the CV choice of alpha
 from .estimators import PrunedTreeClassifier, PrunedTreeRegressor
 from .exceptions import InvalidParameterError, PrunebenchError
 from .pruning import PRUNE_RISKS, PruningPath, cart_candidates, pruning_path
+from .results import Results, open_results
 from .selection import (
     AlphaSelection,
     MinimumRule,
@@ -28,10 +29,12 @@ __all__ = [
     "PrunedTreeClassifier",
     "PrunedTreeRegressor",
     "PruningPath",
+    "Results",
     "SelectionRule",
     "StandardErrorRule",
     "__version__",
     "cart_candidates",
+    "open_results",
     "parse_rule",
     "pruning_path",
     "select_alpha",

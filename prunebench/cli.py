@@ -183,6 +183,22 @@ def check(study_file, workers) -> None:
     from .study import load_study
 
     study = load_study(study_file)
+    if study.search is not None:
+        spec = study.search
+        click.echo(
+            f"study {study.name!r}: a search ({spec.sampler} sampler, "
+            f"{spec.configurations} configurations, early stopping "
+            f"{'on' if spec.early_stopping else 'off'}, seed {spec.seed})"
+        )
+        for name, value in spec.space.items():
+            click.echo(
+                f"  {name}: {value[0]} {list(value[1:]) if value[0] != 'choices' else value[1]}"
+            )
+        click.echo(
+            f"each configuration runs on {len(study.datasets)} datasets: "
+            f"{', '.join(study.datasets)}; outer CV {study.repeats} x {study.folds}"
+        )
+        return
     groups = study.groups()
     per_fit = _calibrate(study)
     click.echo(f"study {study.name!r}: {study.description}".rstrip(": "))
@@ -255,6 +271,23 @@ def conduct(study_file, database, workers, retry_failed) -> None:
     )
     for error in summary.errors[:5]:
         click.echo(f"  failed: {error}")
+    if summary.search is not None:
+        found = summary.search
+        click.echo(
+            f"search: {found['configurations']} configurations finished, "
+            f"{found['stopped_early']} of them stopped early, {found['failed']} failed; "
+            f"Optuna's storage in {found['storage']}"
+        )
+        if "best" in found:
+            best = found["best"]
+            depth = "none" if best["max_depth"] is None else best["max_depth"]
+            click.echo(
+                f"best: criterion {best['criterion']}, max_depth {depth}, min_samples_leaf "
+                f"{best['min_samples_leaf']}, inner_folds {best['inner_folds']}, rule "
+                f"{best['rule']}, prune_risk {best['prune_risk']}; mean relative loss "
+                f"{found['best_value']:.4f} (95% CI {found['ci_low']:.4f} to "
+                f"{found['ci_high']:.4f}; 1 = no better than ignoring the features)"
+            )
     with ResultStore(summary.database, readonly=True) as store:
         table = arm_means(store, study.study_id)
     if table.empty:
@@ -618,6 +651,91 @@ def report(database, study, out) -> None:
 
     path = write_report(database, out, study)
     click.echo(f"report written to {path} ({path.stat().st_size // 1024} KiB)")
+
+
+@main.command()
+@click.option(
+    "--db", "database", required=True, type=click.Path(dir_okay=False), help="The results database."
+)
+@click.argument("query")
+@_output_options
+@_reports_errors
+def sql(database, query, as_json, as_csv) -> None:
+    """Run one read-only SQL query against a results database.
+
+    The file is opened read-only; statements that would write (INSERT, UPDATE, DELETE,
+    DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, ...) are refused.
+    """
+    from .results import run_query
+
+    frame = run_query(database, query)
+    if not _emit(frame, as_json, as_csv):
+        click.echo(frame.to_string(index=False, max_colwidth=40) if len(frame) else "(no rows)")
+
+
+@main.command()
+@click.option(
+    "--db", "database", required=True, type=click.Path(dir_okay=False), help="The results database."
+)
+@click.option(
+    "--out",
+    required=True,
+    type=click.Path(file_okay=False),
+    help="Folder for the files (created if missing).",
+)
+@click.option(
+    "--format",
+    "fmt",
+    type=click.Choice(["csv", "parquet"]),
+    default="csv",
+    show_default=True,
+    help="File format.",
+)
+@_reports_errors
+def export(database, out, fmt) -> None:
+    """Write every table and view of a results database as CSV or Parquet files."""
+    from .results import export_tables
+
+    written = export_tables(database, out, fmt)
+    click.echo(f"{len(written)} files written to {out}: " + ", ".join(p.name for p in written))
+
+
+@main.command()
+@click.option(
+    "--db", "database", required=True, type=click.Path(dir_okay=False), help="The results database."
+)
+@click.option("--study", default=None, help="Study name (default: the latest).")
+@click.option(
+    "--watch",
+    default=0.0,
+    show_default=True,
+    help="Refresh every this many seconds until no trial is pending (0: once).",
+)
+@_reports_errors
+def progress(database, study, watch) -> None:
+    """Show a study's progress: done / failed / pending, rate, ETA and the last errors.
+
+    Works while a conduct writes to the database in another terminal, and after it ends.
+    """
+    import time
+
+    from .execute import _duration
+    from .results import progress_report
+
+    while True:
+        r = progress_report(database, study)
+        rate = "-" if r["rate_per_minute"] is None else f"{r['rate_per_minute']:.1f}"
+        eta = "-" if r["eta_seconds"] is None else _duration(r["eta_seconds"])
+        click.echo(
+            f"study {r['study']!r}: {r['done']} done, {r['failed']} failed, "
+            f"{r['pending']} pending of {r['total']} trials; {rate} trials/min; "
+            f"ETA {eta}; last finished {r['last_finished'] or '-'}"
+        )
+        for error in r["errors"]:
+            click.echo(f"  recent failure: {error}")
+        if watch <= 0 or r["pending"] == 0:
+            return
+        time.sleep(watch)
 
 
 def _estimator_block(rec: dict) -> str:

@@ -24,7 +24,7 @@ from .exceptions import PrunebenchError
 from .store import ResultStore, utc_now
 from .study import Study, TrialGroup
 
-__all__ = ["ConductSummary", "Progress", "conduct", "default_database"]
+__all__ = ["ConductSummary", "GroupRunner", "Progress", "conduct", "default_database"]
 
 
 class ConductError(PrunebenchError):
@@ -69,6 +69,7 @@ class ConductSummary:
     write_seconds: float = 0.0
     n_fits: int = 0
     errors: list[str] = field(default_factory=list)
+    search: dict | None = None
 
 
 class Progress:
@@ -171,6 +172,92 @@ def _run_task(task: _Task) -> _Outcome:
         )
 
 
+class GroupRunner:
+    """Runs trial groups and stores each outcome as it arrives; the only writer.
+
+    Parameters
+    ----------
+    store : ResultStore
+        Open for writing, with the conducting lock held.
+    study : Study
+    summary : ConductSummary
+        Counts are added to it.
+    progress : Progress
+    workers : int
+        Worker processes; 1 runs the groups in this process.
+    on_group : callable, optional
+        Called with each outcome after it is stored.
+    """
+
+    def __init__(self, store, study, summary, progress, workers=1, on_group=None) -> None:
+        self.store, self.study, self.summary = store, study, summary
+        self.progress, self.workers, self.on_group = progress, workers, on_group
+        self._pool = None
+
+    def __enter__(self) -> GroupRunner:
+        if self.workers > 1:
+            self._pool = ProcessPoolExecutor(max_workers=self.workers)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(cancel_futures=True)
+        self.progress.close()
+
+    def _task(self, g: TrialGroup) -> _Task:
+        name, params, manifest = self.study.dataset_specs[g.dataset]
+        return _Task(
+            group=g,
+            dataset_name=name,
+            dataset_params=params,
+            manifest=manifest,
+            fingerprint=self.study.datasets[g.dataset].fingerprint,
+            seed=self.study.seed,
+            repeats=self.study.repeats,
+            folds=self.study.folds,
+        )
+
+    def run(self, groups: list[TrialGroup]) -> list[_Outcome]:
+        """Evaluate groups (in parallel when there are workers) and store each outcome."""
+        tasks = [self._task(g) for g in groups]
+        outcomes = []
+        if self._pool is None or len(tasks) <= 1:
+            for task in tasks:
+                outcomes.append(self._store(_run_task(task)))
+        else:
+            futures = [self._pool.submit(_run_task, task) for task in tasks]
+            for future in as_completed(futures):
+                outcomes.append(self._store(future.result()))
+        return outcomes
+
+    def _store(self, outcome: _Outcome) -> _Outcome:
+        t0 = time.perf_counter()
+        n = len(outcome.group.trials)
+        if outcome.error is None:
+            self.store.save_group(
+                outcome.result, outcome.group.trials, outcome.started, outcome.finished
+            )
+            self.summary.done += n
+            self.summary.n_fits += outcome.result.n_fits
+            self.progress.update(done=n)
+        else:
+            self.store.save_failure(
+                outcome.group.trials,
+                outcome.error,
+                outcome.started,
+                outcome.finished,
+                outcome.seconds,
+            )
+            self.summary.failed += n
+            self.summary.errors.append(outcome.error.strip().splitlines()[-1])
+            self.progress.update(failed=n)
+        self.summary.write_seconds += time.perf_counter() - t0
+        self.summary.groups_run += 1
+        if self.on_group is not None:
+            self.on_group(outcome)
+        return outcome
+
+
 def conduct(
     study: Study,
     database: str | Path | None = None,
@@ -181,6 +268,9 @@ def conduct(
     on_group: Callable[[_Outcome], None] | None = None,
 ) -> ConductSummary:
     """Run or resume a study; store every trial group as it finishes.
+
+    A study with a ``[search]`` section runs its search instead of the full grid
+    (see :mod:`prunebench.search`).
 
     Parameters
     ----------
@@ -208,65 +298,26 @@ def conduct(
     summary = ConductSummary(database=path)
     with ResultStore(path, lock=True) as store:
         store.register_study(study)
-        statuses = store.statuses(study.study_id)
-        wanted = {"pending", "failed"} if retry_failed else {"pending"}
-        groups = [
-            g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)
-        ]
-        summary.total = len(study.trials())
-        todo = sum(len(g.trials) for g in groups)
-        summary.skipped = summary.total - todo
-        progress = progress or Progress(todo)
-        progress.total = todo
-        tasks = [
-            _Task(
-                group=g,
-                dataset_name=study.dataset_specs[g.dataset][0],
-                dataset_params=study.dataset_specs[g.dataset][1],
-                manifest=study.dataset_specs[g.dataset][2],
-                fingerprint=study.datasets[g.dataset].fingerprint,
-                seed=study.seed,
-                repeats=study.repeats,
-                folds=study.folds,
-            )
-            for g in groups
-        ]
+        if study.search is not None:
+            from .search import run_search
 
-        def store_outcome(outcome: _Outcome) -> None:
-            t0 = time.perf_counter()
-            if outcome.error is None:
-                store.save_group(
-                    outcome.result, outcome.group.trials, outcome.started, outcome.finished
-                )
-                summary.done += len(outcome.group.trials)
-                summary.n_fits += outcome.result.n_fits
-                progress.update(done=len(outcome.group.trials))
-            else:
-                store.save_failure(
-                    outcome.group.trials,
-                    outcome.error,
-                    outcome.started,
-                    outcome.finished,
-                    outcome.seconds,
-                )
-                summary.failed += len(outcome.group.trials)
-                summary.errors.append(outcome.error.strip().splitlines()[-1])
-                progress.update(failed=len(outcome.group.trials))
-            summary.write_seconds += time.perf_counter() - t0
-            summary.groups_run += 1
-            if on_group is not None:
-                on_group(outcome)
-
-        try:
-            if workers == 1 or len(tasks) <= 1:
-                for task in tasks:
-                    store_outcome(_run_task(task))
-            else:
-                with ProcessPoolExecutor(max_workers=workers) as pool:
-                    futures = [pool.submit(_run_task, task) for task in tasks]
-                    for future in as_completed(futures):
-                        store_outcome(future.result())
-        finally:
-            progress.close()
+            progress = progress or Progress(study.search.configurations * len(study.datasets))
+            with GroupRunner(store, study, summary, progress, workers, on_group) as runner:
+                summary.search = run_search(study, store, runner, path)
+            summary.total = len(store.statuses(study.study_id))
+            summary.skipped = summary.total - summary.done - summary.failed
+        else:
+            statuses = store.statuses(study.study_id)
+            wanted = {"pending", "failed"} if retry_failed else {"pending"}
+            groups = [
+                g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)
+            ]
+            summary.total = len(study.trials())
+            todo = sum(len(g.trials) for g in groups)
+            summary.skipped = summary.total - todo
+            progress = progress or Progress(todo)
+            progress.total = todo
+            with GroupRunner(store, study, summary, progress, workers, on_group) as runner:
+                runner.run(groups)
     summary.seconds = time.perf_counter() - start
     return summary

@@ -339,23 +339,29 @@ class ResultStore:
                     },
                     ignore=True,
                 )
-            self.db["trials"].insert_all(
-                (
-                    {
-                        "trial_id": t.trial_id,
-                        "study_id": study.study_id,
-                        "dataset_id": self.dataset_id(
-                            t.dataset, study.datasets[t.dataset].fingerprint
-                        ),
-                        "group_id": t.group_id,
-                        **t.levels(),
-                        "status": "pending",
-                    }
-                    for t in study.trials()
-                ),
-                ignore=True,
-            )
+            self._insert_trials(study, study.trials())
             self._record_environment(study.study_id, now)
+
+    def add_trials(self, study, trials) -> None:
+        """Record more trials of a registered study as ``pending`` (existing ones are kept)."""
+        with self.db.conn:
+            self._insert_trials(study, trials)
+
+    def _insert_trials(self, study, trials) -> None:
+        self.db["trials"].insert_all(
+            (
+                {
+                    "trial_id": t.trial_id,
+                    "study_id": study.study_id,
+                    "dataset_id": self.dataset_id(t.dataset, study.datasets[t.dataset].fingerprint),
+                    "group_id": t.group_id,
+                    **t.levels(),
+                    "status": "pending",
+                }
+                for t in trials
+            ),
+            ignore=True,
+        )
 
     @staticmethod
     def dataset_id(key: str, fingerprint: str) -> str:

@@ -54,6 +54,7 @@ from .selection import parse_rule
 __all__ = [
     "CLASSIFICATION_CRITERIA",
     "REGRESSION_CRITERIA",
+    "SearchSpec",
     "Study",
     "StudyError",
     "Trial",
@@ -77,7 +78,10 @@ _DEFAULTS = {
     },
 }
 FACTORS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk")
-_TOP_KEYS = {"name", "description", "seed", "database", "datasets", "outer", "factors"}
+_TOP_KEYS = {"name", "description", "seed", "database", "datasets", "outer", "factors", "search"}
+_SAMPLERS = ("tpe", "random", "grid")
+_SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
+_SPACE_KEYS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "se", "prune_risk")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,79}$")
 
 
@@ -137,6 +141,33 @@ class TrialGroup:
         return [t.rule for t in self.trials]
 
 
+@dataclass(frozen=True)
+class SearchSpec:
+    """A search over configurations instead of the full grid.
+
+    Attributes
+    ----------
+    sampler : {"tpe", "random", "grid"}
+    configurations : int
+        Configurations to evaluate (each on every data set of the study).
+    early_stopping : bool
+        Stop a configuration that is clearly poor after a few data sets (Optuna's
+        median pruner; "early stopping" here, so it is not confused with tree pruning).
+    seed : int
+    space : dict
+        Name -> ``("choices", [...])``, ``("int", low, high, log)`` or
+        ``("float", low, high)``; names are ``criterion``, ``max_depth`` ("none" allowed
+        among choices), ``min_samples_leaf``, ``inner_folds``, ``se`` (the k of the
+        k-SE rule, a float) and ``prune_risk``.
+    """
+
+    sampler: str
+    configurations: int
+    early_stopping: bool
+    seed: int
+    space: dict
+
+
 @dataclass
 class Study:
     """A validated study.
@@ -172,6 +203,7 @@ class Study:
     text: str
     path: Path | None = None
     database: Path | None = None
+    search: SearchSpec | None = None
     _trials: list[Trial] = field(default_factory=list, repr=False)
 
     @property
@@ -190,10 +222,33 @@ class Study:
         return f"{self.repeats}x{self.folds}"
 
     def trials(self) -> list[Trial]:
-        """Every trial: data sets x factor levels, in a fixed order."""
-        if not self._trials:
+        """Every trial: data sets x factor levels, in a fixed order (none for a search)."""
+        if not self._trials and self.search is None:
             self._trials = list(_expand(self))
         return self._trials
+
+    def trial_group(self, dataset: str, levels: dict) -> TrialGroup:
+        """The one-trial group of a configuration on a data set (used by searches).
+
+        Parameters
+        ----------
+        dataset : str
+            A data set key of the study.
+        levels : dict
+            ``criterion``, ``max_depth`` (None = unlimited), ``min_samples_leaf``,
+            ``inner_folds``, ``rule``, ``prune_risk``.
+        """
+        trial = _make_trial(self, dataset, levels)
+        return TrialGroup(
+            group_id=trial.group_id,
+            dataset=dataset,
+            criterion=trial.criterion,
+            max_depth=trial.max_depth,
+            min_samples_leaf=trial.min_samples_leaf,
+            inner_folds=trial.inner_folds,
+            prune_risk=trial.prune_risk,
+            trials=(trial,),
+        )
 
     def groups(self) -> list[TrialGroup]:
         """The trials grouped by shared tree fits, in a fixed order."""
@@ -227,32 +282,46 @@ def _hash(*parts: object) -> str:
     return hashlib.sha256(json.dumps(parts, sort_keys=True).encode()).hexdigest()[:16]
 
 
+def _make_trial(study: Study, key: str, levels: dict) -> Trial:
+    fp = study.datasets[key].fingerprint
+    crit, depth, leaf = levels["criterion"], levels["max_depth"], levels["min_samples_leaf"]
+    inner, risk, rule = levels["inner_folds"], levels["prune_risk"], levels["rule"]
+    return Trial(
+        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk),
+        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk),
+        dataset=key,
+        criterion=crit,
+        max_depth=depth,
+        min_samples_leaf=leaf,
+        inner_folds=inner,
+        rule=rule,
+        prune_risk=risk,
+    )
+
+
 def _expand(study: Study):
-    for key, data in study.datasets.items():
+    for key in study.datasets:
         levels = study.factors[study.task_of(key)]
-        for crit, depth, leaf, inner, risk in itertools.product(
+        for crit, depth, leaf, inner, risk, rule in itertools.product(
             levels["criterion"],
             levels["max_depth"],
             levels["min_samples_leaf"],
             levels["inner_folds"],
             levels["prune_risk"],
+            levels["rule"],
         ):
-            depth_value = None if depth == "none" else depth
-            group = _hash(study.name, data.fingerprint, crit, depth_value, leaf, inner, risk)
-            for rule in levels["rule"]:
-                yield Trial(
-                    trial_id=_hash(
-                        study.name, data.fingerprint, crit, depth_value, leaf, inner, rule, risk
-                    ),
-                    group_id=group,
-                    dataset=key,
-                    criterion=crit,
-                    max_depth=depth_value,
-                    min_samples_leaf=leaf,
-                    inner_folds=inner,
-                    rule=rule,
-                    prune_risk=risk,
-                )
+            yield _make_trial(
+                study,
+                key,
+                {
+                    "criterion": crit,
+                    "max_depth": None if depth == "none" else depth,
+                    "min_samples_leaf": leaf,
+                    "inner_folds": inner,
+                    "rule": rule,
+                    "prune_risk": risk,
+                },
+            )
 
 
 class _Checker:
@@ -389,6 +458,84 @@ def _datasets(
     return out
 
 
+def _search(check: _Checker, doc: object, seed: int) -> SearchSpec:
+    if not isinstance(doc, dict):
+        raise check.fail("search", "must be a table")
+    for key in doc:
+        if key not in _SEARCH_KEYS:
+            raise check.fail(
+                f"search.{key}",
+                f"is not a search key; the keys are {', '.join(sorted(_SEARCH_KEYS))}",
+            )
+    sampler = doc.get("sampler", "tpe")
+    if sampler not in _SAMPLERS:
+        raise check.fail(
+            "search.sampler", f"{sampler!r} is not a sampler; use {', '.join(_SAMPLERS)}"
+        )
+    n = doc.get("configurations", 20)
+    if not _is_int(n) or n < 1:
+        raise check.fail("search.configurations", f"must be an integer >= 1; got {n!r}")
+    early = doc.get("early_stopping", True)
+    if not isinstance(early, bool):
+        raise check.fail("search.early_stopping", "must be true or false")
+    search_seed = doc.get("seed", seed)
+    if not _is_int(search_seed) or search_seed < 0:
+        raise check.fail("search.seed", "must be an integer >= 0")
+    raw = doc.get("space")
+    if not isinstance(raw, dict) or not raw:
+        raise check.fail("search.space", "needs a table of choices or ranges")
+    space = {}
+    for name, value in raw.items():
+        key = f"search.space.{name}"
+        if name not in _SPACE_KEYS:
+            raise check.fail(key, f"is not searchable; use {', '.join(_SPACE_KEYS)}")
+        if isinstance(value, list):
+            space[name] = ("choices", _levels(check, key, value))
+        elif isinstance(value, dict):
+            if set(value) - {"low", "high", "log"} or not {"low", "high"} <= set(value):
+                raise check.fail(
+                    key, "a range is { low = ..., high = ... } with optional log = true"
+                )
+            low, high = value["low"], value["high"]
+            if name == "se":
+                if (
+                    not all(
+                        isinstance(v, (int, float)) and not isinstance(v, bool) for v in (low, high)
+                    )
+                    or not 0 <= low < high
+                ):
+                    raise check.fail(key, "needs numbers 0 <= low < high")
+                space[name] = ("float", float(low), float(high))
+            elif name in ("max_depth", "min_samples_leaf", "inner_folds"):
+                least = 2 if name == "inner_folds" else 1
+                if not (_is_int(low) and _is_int(high) and least <= low < high):
+                    raise check.fail(key, f"needs integers {least} <= low < high")
+                space[name] = ("int", low, high, bool(value.get("log", False)))
+            else:
+                raise check.fail(key, "takes a list of choices, not a range")
+        else:
+            raise check.fail(key, "must be a list of choices or a { low, high } range")
+    if sampler == "grid" and any(v[0] != "choices" for v in space.values()):
+        raise check.fail(
+            "search.sampler", "the grid sampler needs every space entry as a list of choices"
+        )
+    return SearchSpec(sampler, n, early, search_seed, space)
+
+
+def _check_space(check: _Checker, search: SearchSpec, task: str) -> None:
+    for name, spec in search.space.items():
+        if spec[0] != "choices":
+            continue
+        key = f"search.space.{name}"
+        if name == "se":
+            if not all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) and v >= 0 for v in spec[1]
+            ):
+                raise check.fail(key, "the k of the k-SE rule is a number >= 0")
+        else:
+            _check_factor(check, key, name, spec[1], task)
+
+
 def parse_study(text: str, source: str = "<study>", base: Path | None = None) -> Study:
     """Validate a study file's text and load its data sets.
 
@@ -470,6 +617,13 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
                 f"factors.{key}", f"is not a factor; the factors are {', '.join(FACTORS)}"
             )
 
+    search = _search(check, doc["search"], seed) if "search" in doc else None
+    if search is not None and "factors" in doc:
+        raise check.fail(
+            "factors",
+            "a study with [search] takes its levels from [search.space]; remove [factors]",
+        )
+
     base = base or Path(".")
     entries = _datasets(check, doc["datasets"], base)
     loaded: dict[str, LoadedDataset] = {}
@@ -486,6 +640,14 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     for task in per_task:
         if task not in tasks:
             raise check.fail(f"factors.{task}", f"no {task} dataset in the study")
+    if search is not None:
+        if len(tasks) > 1:
+            raise check.fail(
+                "search",
+                "a search needs datasets of one task family; split "
+                "classification and regression into two studies",
+            )
+        _check_space(check, search, tasks[0])
 
     factors: dict[str, dict[str, list]] = {}
     for task in tasks:
@@ -562,6 +724,7 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         factors=factors,
         text=text,
         database=Path(os.path.normpath(base / database)) if database else None,
+        search=search,
     )
 
 

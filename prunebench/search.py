@@ -1,0 +1,234 @@
+"""Searching for a robust default with Optuna instead of running the full grid.
+
+A study with a ``[search]`` section lets an Optuna sampler (TPE by default;
+random and grid too) propose configurations over a mixed space — criterion,
+max_depth, min_samples_leaf, the k of the k-SE rule as a float, inner folds,
+pruning risk.  Each configuration is evaluated on every data set of the study
+as ordinary trials in the results database, so every other command works on
+them.
+
+**Objective: mean relative loss of the pruned tree.**  On each data set the
+pruned arm's mean test loss is divided by the loss of predicting without the
+features — the majority class's error rate for classification, the variance of
+y for regression (so the ratio is 1 - R^2) — and the objective is the mean of
+these ratios over data sets (lower is better).  It is scale-free across data
+sets, unlike raw error, and, unlike a mean rank or a regret against the best
+configuration so far, it does not change as the search goes on, which the
+samplers assume.  Its 95% interval combines the corrected resampled t standard
+errors of the data sets (normal approximation).
+
+**Early stopping.**  After each data set (or each batch of ``--workers`` data
+sets) the running mean is reported to Optuna; a median pruner stops a
+configuration that is clearly worse than the earlier ones.  The interface calls
+this *early stopping* so it is not confused with tree pruning; its trials on the
+data sets already evaluated stay in the database.
+
+**Resuming.**  Optuna keeps its own SQLite storage in a separate file beside the
+results database (``RESULTS.sqlite.optuna``), never in the results file.  After
+a kill, the configuration that was running is proposed again first, and its
+data sets that finished before the kill are skipped (the results database has
+them), so no finished configuration is evaluated twice.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from pathlib import Path
+
+import numpy as np
+
+from .datasets import is_classification
+from .stats import corrected_ttest
+
+__all__ = ["relative_losses", "run_search", "search_storage_path"]
+
+
+def search_storage_path(database: str | Path) -> Path:
+    """Optuna's storage file for a results database: beside it, never inside it."""
+    database = Path(database)
+    return database.with_name(database.name + ".optuna")
+
+
+def _reference_loss(data) -> float:
+    if is_classification(data.task):
+        _, counts = np.unique(data.y, return_counts=True)
+        return float(1 - counts.max() / counts.sum())
+    return float(np.var(data.y))
+
+
+def relative_losses(store, study, trial_id: str) -> dict:
+    """Per-fold relative loss of a finished trial's pruned arm, with its corrected t.
+
+    Returns
+    -------
+    dict
+        ``mean`` and ``se`` of the trial's relative loss (see the module notes).
+    """
+    row = store.query(
+        "SELECT d.name AS dataset, d.task FROM trials t JOIN datasets d USING (dataset_id) "
+        "WHERE t.trial_id = ?",
+        [trial_id],
+    )[0]
+    metric = "mse" if row["task"] == "regression" else "error"
+    folds = store.query(
+        f"SELECT {metric} AS loss, n_train, n_test FROM folds WHERE trial_id = ? AND "
+        "arm = 'pruned'",
+        [trial_id],
+    )
+    reference = _reference_loss(study.datasets[row["dataset"]]) or 1.0
+    losses = np.array([f["loss"] for f in folds]) / reference
+    t = corrected_ttest(losses, [f["n_train"] for f in folds], [f["n_test"] for f in folds])
+    return {"mean": t.mean, "se": t.se}
+
+
+def _suggest(trial, space: dict) -> dict:
+    levels = {}
+    for name, spec in space.items():
+        kind = spec[0]
+        if kind == "choices":
+            value = trial.suggest_categorical(name, spec[1])
+        elif kind == "int":
+            value = trial.suggest_int(name, spec[1], spec[2], log=spec[3])
+        else:
+            value = trial.suggest_float(name, spec[1], spec[2], step=0.01)
+        levels[name] = value
+    k = float(levels.pop("se", 1.0))
+    levels["rule"] = f"{round(k, 2):g}se"
+    depth = levels.get("max_depth", "none")
+    levels["max_depth"] = None if depth == "none" else int(depth)
+    return levels
+
+
+def _complete_levels(study, levels: dict) -> dict:
+    task = study.task_of(next(iter(study.datasets)))
+    defaults = {
+        "criterion": "gini" if task == "classification" else "squared_error",
+        "min_samples_leaf": 1,
+        "inner_folds": 10,
+        "prune_risk": "error" if task == "classification" else "squared_error",
+    }
+    return {**defaults, **levels}
+
+
+def _grid_space(space: dict) -> dict:
+    return {name: list(spec[1]) for name, spec in space.items()}
+
+
+def run_search(study, store, runner, database: str | Path) -> dict:
+    """Run (or resume) a study's search; every evaluation goes through ``runner``.
+
+    Parameters
+    ----------
+    study : Study
+        A study with a ``search``.
+    store : ResultStore
+        The results database, held for writing.
+    runner : GroupRunner
+        Evaluates and stores trial groups.
+    database : str or Path
+        The results database's path, to place Optuna's storage beside it.
+
+    Returns
+    -------
+    dict
+        ``configurations`` (finished), ``stopped_early``, ``failed``, ``best`` (levels),
+        ``best_value`` with ``ci_low``/``ci_high``, and ``storage``.
+    """
+    import optuna
+
+    optuna.logging.set_verbosity(optuna.logging.WARNING)
+    spec = study.search
+    storage_path = search_storage_path(database)
+    storage = optuna.storages.RDBStorage(f"sqlite:///{storage_path}")
+    grid = None
+    if spec.sampler == "grid":
+        # every grid point is queued once, in a seeded order; Optuna's GridSampler stops
+        # the study from inside tell(), which ask-and-tell use does not allow
+        grid = _grid_space(spec.space)
+        sampler = optuna.samplers.RandomSampler(seed=spec.seed)
+        budget = min(spec.configurations, math.prod(len(v) for v in grid.values()))
+    else:
+        make = (
+            optuna.samplers.TPESampler if spec.sampler == "tpe" else optuna.samplers.RandomSampler
+        )
+        sampler = make(seed=spec.seed)
+        budget = spec.configurations
+    pruner = (
+        optuna.pruners.MedianPruner(n_startup_trials=3, n_warmup_steps=0)
+        if spec.early_stopping
+        else optuna.pruners.NopPruner()
+    )
+    search = optuna.create_study(
+        study_name=study.name,
+        storage=storage,
+        sampler=sampler,
+        pruner=pruner,
+        direction="minimize",
+        load_if_exists=True,
+    )
+    if grid is not None and not search.trials:
+        points = list(itertools.product(*grid.values()))
+        for i in np.random.default_rng(spec.seed).permutation(len(points)):
+            search.enqueue_trial(dict(zip(grid, points[i], strict=True)))
+    running = optuna.trial.TrialState.RUNNING
+    for stale in search.get_trials(deepcopy=False, states=(running,)):
+        # a kill interrupted it: propose the same configuration again, first
+        search.enqueue_trial(stale.params, skip_if_exists=False)
+        storage.set_trial_state_values(stale._trial_id, optuna.trial.TrialState.FAIL)
+    ended = (optuna.trial.TrialState.COMPLETE, optuna.trial.TrialState.PRUNED)
+    keys = list(study.datasets)
+    batch = max(runner.workers, 1)
+    while len(search.get_trials(deepcopy=False, states=ended)) < budget:
+        trial = search.ask()
+        levels = _complete_levels(study, _suggest(trial, spec.space))
+        groups = [study.trial_group(key, levels) for key in keys]
+        store.add_trials(study, [t for g in groups for t in g.trials])
+        statuses = store.statuses(study.study_id)
+        scores, failed, stopped = [], False, False
+        for start in range(0, len(groups), batch):
+            chunk = groups[start : start + batch]
+            outcomes = runner.run([g for g in chunk if statuses[g.trials[0].trial_id] != "done"])
+            if any(o.error is not None for o in outcomes):
+                failed = True
+                break
+            scores += [relative_losses(store, study, g.trials[0].trial_id) for g in chunk]
+            trial.report(float(np.mean([s["mean"] for s in scores])), step=len(scores))
+            if len(scores) < len(groups) and trial.should_prune():
+                stopped = True
+                break
+        if failed:
+            search.tell(trial, state=optuna.trial.TrialState.FAIL)
+            if (
+                all(t.state == optuna.trial.TrialState.FAIL for t in search.trials[-3:])
+                and len(search.trials) >= 3
+            ):
+                break  # three failures in a row: something is wrong beyond one configuration
+        elif stopped:
+            search.tell(trial, state=optuna.trial.TrialState.PRUNED)
+        else:
+            value = float(np.mean([s["mean"] for s in scores]))
+            se = float(np.sqrt(np.sum([s["se"] ** 2 for s in scores])) / len(scores))
+            trial.set_user_attr("se", se)
+            search.tell(trial, value)
+    complete = search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.COMPLETE,))
+    result = {
+        "configurations": len(search.get_trials(deepcopy=False, states=ended)),
+        "stopped_early": len(
+            search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.PRUNED,))
+        ),
+        "failed": len(search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.FAIL,))),
+        "storage": str(storage_path),
+    }
+    if complete:
+        best = min(complete, key=lambda t: t.value)
+        se = best.user_attrs.get("se", float("nan"))
+        result.update(
+            best=_complete_levels(
+                study, _suggest(optuna.trial.FixedTrial(best.params), spec.space)
+            ),
+            best_value=best.value,
+            ci_low=best.value - 1.96 * se,
+            ci_high=best.value + 1.96 * se,
+        )
+    return result

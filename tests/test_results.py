@@ -1,0 +1,153 @@
+"""Tests of reading results: read-only SQL, pandas, exports and progress."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import sqlite3
+import subprocess
+import sys
+import time
+
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from prunebench import open_results
+from prunebench.cli import main
+from prunebench.results import TABLES, VIEWS, progress_report
+
+
+def _digest(path):
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+@pytest.mark.parametrize(
+    "statement",
+    [
+        "INSERT INTO folds (trial_id) VALUES ('x')",
+        "UPDATE trials SET status = 'pending'",
+        "DELETE FROM folds",
+        "DROP TABLE folds",
+        "CREATE TABLE notes (x)",
+        "ALTER TABLE trials ADD COLUMN note TEXT",
+        "ATTACH DATABASE 'other.sqlite' AS other",
+        "PRAGMA user_version = 99",
+        "PRAGMA journal_mode = DELETE",
+        "REPLACE INTO studies (study_id) VALUES ('x')",
+        "WITH doomed AS (SELECT trial_id FROM trials) DELETE FROM folds",
+        "  delete from curves;",
+        "VACUUM",
+        "SELECT 1; DELETE FROM folds",
+        "BEGIN",
+    ],
+)
+def test_sql_refuses_every_kind_of_write_and_leaves_the_file_alone(statement, small_db):
+    before = _digest(small_db)
+    result = CliRunner().invoke(main, ["sql", "--db", str(small_db), statement])
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert "refused" in result.output or "one statement" in result.output
+    assert _digest(small_db) == before
+
+
+def test_sql_reads_with_json_and_csv(small_db):
+    query = "SELECT rule, COUNT(*) AS n FROM trials GROUP BY rule ORDER BY rule"
+    as_json = json.loads(
+        CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--json"]).output
+    )
+    assert as_json == [{"rule": "1se", "n": 24}, {"rule": "min", "n": 24}]
+    as_csv = CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--csv"]).output
+    assert as_csv.splitlines() == ["rule,n", "1se,24", "min,24"]
+    pragma = CliRunner().invoke(main, ["sql", "--db", str(small_db), "PRAGMA table_info(folds)"])
+    assert pragma.exit_code == 0 and "test_fingerprint" in pragma.output
+    broken = CliRunner().invoke(main, ["sql", "--db", str(small_db), "SELECT nope FROM folds"])
+    assert broken.exit_code == 2 and "no such column" in broken.output
+
+
+def test_open_results_round_trips_what_the_store_wrote(small_db):
+    results = open_results(small_db)
+    conn = sqlite3.connect(small_db)
+    for name in TABLES + VIEWS:
+        ours = results.table(name)
+        cursor = conn.execute(f'SELECT * FROM "{name}"')
+        raw = cursor.fetchall()
+        assert list(ours.columns) == [c[0] for c in cursor.description]
+        assert len(ours) == len(raw)
+
+        def native(v):
+            return None if pd.isna(v) else (v.item() if hasattr(v, "item") else v)
+
+        rebuilt = [tuple(native(v) for v in row) for row in ours.itertuples(index=False)]
+        assert sorted(rebuilt, key=repr) == sorted(raw, key=repr), name
+        for a, b in zip(sorted(rebuilt, key=repr), sorted(raw, key=repr), strict=True):
+            assert [type(x) for x in a] == [type(x) for x in b], name
+    assert len(results.folds()) == 48 * 6 * 2
+    assert set(results.comparison()["verdict"]) <= {
+        "pruned better",
+        "unpruned better",
+        "no evidence either way",
+    }
+    assert results.ranking()[0]["family"] == "classification"
+    assert results.recommendation()[0]["config"]["criterion"] in ("gini", "entropy")
+
+
+def test_export_writes_every_table(small_db, tmp_path):
+    result = CliRunner().invoke(main, ["export", "--db", str(small_db), "--out", str(tmp_path)])
+    assert result.exit_code == 0, result.output
+    for name in TABLES + VIEWS:
+        frame = pd.read_csv(tmp_path / f"{name}.csv")
+        assert len(frame) == len(open_results(small_db).table(name))
+    pytest.importorskip("pyarrow")
+    CliRunner().invoke(
+        main,
+        ["export", "--db", str(small_db), "--out", str(tmp_path / "pq"), "--format", "parquet"],
+    )
+    folds = pd.read_parquet(tmp_path / "pq" / "folds.parquet")
+    assert len(folds) == 48 * 6 * 2
+
+
+STUDY = """\
+name = "watched"
+seed = 2
+datasets = ["digits"]
+[outer]
+repeats = 2
+folds = 3
+[factors]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 3, 5, 7, 9, 11]
+inner_folds = [3]
+rule = ["min", "1se"]
+"""
+
+
+def test_progress_reads_while_conduct_writes(tmp_path):
+    study = tmp_path / "watched.toml"
+    study.write_text(STUDY)
+    db = tmp_path / "watched.sqlite"
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "prunebench.cli", "conduct", str(study)],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    seen = []
+    try:
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline and proc.poll() is None:
+            time.sleep(0.3)
+            if not db.exists():
+                continue
+            result = CliRunner().invoke(main, ["progress", "--db", str(db)])
+            if result.exit_code == 0:
+                seen.append(progress_report(db))
+    finally:
+        proc.wait(timeout=300)
+    assert proc.returncode == 0
+    during = [r for r in seen if r["pending"] > 0]
+    assert during, "progress never saw the sweep running"
+    assert all(r["total"] == 24 for r in seen)
+    final = progress_report(db)
+    assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
+    text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
+    assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text

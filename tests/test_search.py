@@ -1,0 +1,199 @@
+"""Tests of searches for a robust default with Optuna (prunebench.search)."""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+
+import numpy as np
+import optuna
+import pytest
+from click.testing import CliRunner
+
+from prunebench.cli import main
+from prunebench.execute import Progress, conduct
+from prunebench.search import search_storage_path
+from prunebench.study import StudyError, load_study
+
+
+def _data(folder, seeds=(0, 1)):
+    """Synthetic sets a depth-2 tree fits exactly: y = (a > 0.5) and (b > 0.3)."""
+    entries = []
+    tag = re.sub(r"\W", "", folder.name)[-12:]  # dataset names are global in a process
+    for seed in seeds:
+        rng = np.random.default_rng(seed)
+        X = rng.uniform(size=(300, 4))
+        y = ((X[:, 0] > 0.5) & (X[:, 1] > 0.3)).astype(int)
+        with open(folder / f"and{seed}.csv", "w", newline="") as f:
+            w = csv.writer(f)
+            w.writerow(["a", "b", "c", "d", "y"])
+            w.writerows([[*(f"{v:.5f}" for v in X[i]), y[i]] for i in range(len(y))])
+        entries.append(
+            f'[[dataset]]\nname = "and_{tag}_{seed}"\nfile = "and{seed}.csv"\ntarget = "y"\n'
+            'task = "binary"\nsource = "synthetic: y = (a > 0.5) and (b > 0.3)"\n'
+        )
+    (folder / "and.toml").write_text("\n".join(entries))
+    return [f"and_{tag}_{s}" for s in seeds]
+
+
+def _study(folder, sampler="tpe", configurations=10, extra="", space=None):
+    names = _data(folder)
+    datasets = ", ".join(f'{{ manifest = "and.toml", name = "{n}" }}' for n in names)
+    space = space or (
+        "max_depth = [1, 2]\nmin_samples_leaf = { low = 1, high = 150, log = true }\n"
+        "se = { low = 0.0, high = 2.0 }\ninner_folds = [3]\n"
+    )
+    path = folder / "search.toml"
+    path.write_text(
+        f'name = "search-unit"\nseed = 5\ndatasets = [{datasets}]\n[outer]\nrepeats = 1\n'
+        f'folds = 3\n[search]\nsampler = "{sampler}"\nconfigurations = {configurations}\n'
+        f"{extra}[search.space]\n{space}"
+    )
+    return path
+
+
+def test_search_finds_the_depth_two_tree(tmp_path):
+    study = load_study(_study(tmp_path))
+    db = tmp_path / "r.sqlite"
+    summary = conduct(study, db, progress=Progress(0, io.StringIO()))
+    found = summary.search
+    assert found["configurations"] == 10
+    assert found["best"]["max_depth"] == 2 and found["best"]["min_samples_leaf"] < 60
+    assert found["best_value"] < 0.1 and found["ci_low"] <= found["best_value"] <= found["ci_high"]
+    # Optuna's storage sits beside the results file, and its tables never inside it
+    assert search_storage_path(db).exists()
+    tables = {
+        r[0]
+        for r in sqlite3.connect(db).execute("SELECT name FROM sqlite_master WHERE type = 'table'")
+    }
+    assert not any(t.startswith(("trial_", "study_", "alembic", "version_info")) for t in tables)
+    # every proposed configuration is ordinary trials: the statistics read them
+    result = CliRunner().invoke(main, ["compare", "--db", str(db), "--json"])
+    assert result.exit_code == 0
+    depth_one = (
+        sqlite3.connect(db)
+        .execute(
+            "SELECT AVG(f.error) FROM folds f JOIN trials t USING (trial_id) "
+            "WHERE f.arm = 'pruned' AND t.max_depth = 1"
+        )
+        .fetchone()[0]
+    )
+    assert depth_one is None or depth_one > 0.1
+
+
+def test_early_stopping_is_reported_as_such(tmp_path):
+    names = _data(tmp_path, seeds=(0, 1, 2, 3))
+    datasets = ", ".join(f'{{ manifest = "and.toml", name = "{n}" }}' for n in names)
+    path = tmp_path / "stop.toml"
+    path.write_text(
+        f'name = "stop-unit"\nseed = 3\ndatasets = [{datasets}]\n[outer]\nrepeats = 1\nfolds = 3\n'
+        '[search]\nsampler = "random"\nconfigurations = 12\n[search.space]\nmax_depth = [1, 2]\n'
+        "inner_folds = [3]\n"
+    )
+    result = CliRunner().invoke(main, ["conduct", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "stopped early" in result.output
+    storage = optuna.load_study(
+        study_name="stop-unit", storage=f"sqlite:///{search_storage_path(tmp_path / 'stop.sqlite')}"
+    )
+    pruned = [t for t in storage.trials if t.state == optuna.trial.TrialState.PRUNED]
+    assert pruned and all(t.params["max_depth"] == 1 for t in pruned)
+
+
+def test_grid_sampler_covers_the_grid_once(tmp_path):
+    path = _study(
+        tmp_path,
+        sampler="grid",
+        configurations=50,
+        space="max_depth = [1, 2, 3]\nse = [0.0, 1.0]\ninner_folds = [3]\n",
+        extra="early_stopping = false\n",
+    )
+    summary = conduct(load_study(path), tmp_path / "g.sqlite", progress=Progress(0, io.StringIO()))
+    assert summary.search["configurations"] == 6
+    rules = {
+        r[0]
+        for r in sqlite3.connect(tmp_path / "g.sqlite").execute("SELECT DISTINCT rule FROM trials")
+    }
+    assert rules == {"0se", "1se"}
+
+
+def test_search_resumes_after_kill_9_without_repeating_configurations(tmp_path):
+    path = _study(tmp_path, configurations=14)
+    db = tmp_path / "search.sqlite"
+    cmd = [sys.executable, "-m", "prunebench.cli", "conduct", str(path)]
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 120
+    done = 0
+    while time.monotonic() < deadline and proc.poll() is None:
+        time.sleep(0.1)
+        try:
+            conn = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
+            done = conn.execute("SELECT COUNT(*) FROM trials WHERE status = 'done'").fetchone()[0]
+            conn.close()
+        except sqlite3.DatabaseError:
+            continue
+        if done >= 7:
+            break
+    assert proc.poll() is None, "the search finished before it could be killed"
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    conn = sqlite3.connect(db)
+    before = dict(conn.execute("SELECT trial_id, finished FROM trials WHERE status = 'done'"))
+    conn.close()
+    result = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    assert result.returncode == 0, result.stderr
+    conn = sqlite3.connect(db)
+    after = dict(conn.execute("SELECT trial_id, finished FROM trials WHERE status = 'done'"))
+    # nothing finished before the kill ran again
+    assert all(after[t] == f for t, f in before.items())
+    assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    storage = optuna.load_study(
+        study_name="search-unit", storage=f"sqlite:///{search_storage_path(db)}"
+    )
+    ended = [
+        t
+        for t in storage.trials
+        if t.state in (optuna.trial.TrialState.COMPLETE, optuna.trial.TrialState.PRUNED)
+    ]
+    assert len(ended) == 14
+    configurations = conn.execute(
+        "SELECT COUNT(*) FROM (SELECT DISTINCT max_depth, min_samples_leaf, rule FROM trials)"
+    ).fetchone()[0]
+    distinct_params = {tuple(sorted(t.params.items())) for t in ended}
+    assert configurations == len(
+        {
+            (p[0], p[1], round(p[2], 2))
+            for p in (
+                (dict(t)["max_depth"], dict(t)["min_samples_leaf"], dict(t)["se"])
+                for t in distinct_params
+            )
+        }
+    )
+
+
+@pytest.mark.parametrize(
+    "search, phrase",
+    [
+        ('[search]\nsampler = "anneal"\n[search.space]\nmax_depth = [1]\n', "not a sampler"),
+        ("[search]\nconfigurations = 0\n[search.space]\nmax_depth = [1]\n", ">= 1"),
+        ("[search]\n[search.space]\nsplitter = ['best']\n", "not searchable"),
+        ("[search]\n[search.space]\nse = { low = 2, high = 1 }\n", "low < high"),
+        (
+            '[search]\nsampler = "grid"\n[search.space]\nse = { low = 0, high = 1 }\n',
+            "list of choices",
+        ),
+        ("[search]\n[search.space]\ncriterion = ['variance']\n", "criterion"),
+        ("[search]\n[search.space]\nmax_depth = [1]\n[factors]\nrule = ['min']\n", "remove"),
+    ],
+)
+def test_bad_search_sections(search, phrase, tmp_path):
+    path = tmp_path / "bad.toml"
+    path.write_text('name = "bad"\nseed = 1\ndatasets = ["iris"]\n' + search)
+    with pytest.raises(StudyError, match=phrase):
+        load_study(path)
