@@ -250,8 +250,15 @@ def check(study_file, workers) -> None:
     help="Worker processes; the sweep process is the only writer.",
 )
 @click.option("--retry-failed", is_flag=True, help="Run failed trials again.")
+@click.option(
+    "--cluster",
+    default=None,
+    metavar="ADDRESS",
+    help="Run the trial groups on a Dask cluster (scheduler address, e.g. "
+    "tcp://10.0.0.5:8786); needs prunebench[dask].",
+)
 @_reports_errors
-def conduct(study_file, database, workers, retry_failed) -> None:
+def conduct(study_file, database, workers, retry_failed, cluster) -> None:
     """Run or resume a study and store every trial in the results database.
 
     Finished trials are skipped, so running the same command again after a crash or
@@ -264,7 +271,9 @@ def conduct(study_file, database, workers, retry_failed) -> None:
     from .study import load_study
 
     study = load_study(study_file)
-    summary = run_study(study, database, workers=workers, retry_failed=retry_failed)
+    summary = run_study(
+        study, database, workers=workers, retry_failed=retry_failed, cluster=cluster
+    )
     click.echo(
         f"{summary.done} trials done, {summary.failed} failed, {summary.skipped} already "
         f"finished, of {summary.total}; {summary.seconds:.1f} s; results in {summary.database}"

@@ -24,12 +24,14 @@ from sklearn.model_selection import KFold, RepeatedKFold, RepeatedStratifiedKFol
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 from .datasets import LoadedDataset, is_classification
+from .exceptions import PrunebenchError
 from .selection import select_alpha
 
 __all__ = [
     "CLASSIFICATION_METRICS",
     "REGRESSION_METRICS",
     "GroupResult",
+    "TrialTimeout",
     "derive_seed",
     "evaluate_group",
     "outer_splits",
@@ -131,7 +133,18 @@ def _regression_scores(model, X, y) -> dict:
     }
 
 
-def evaluate_group(group, data: LoadedDataset, seed: int, repeats: int, folds: int) -> GroupResult:
+class TrialTimeout(PrunebenchError):
+    """A trial group ran past the study's ``time_limit``."""
+
+
+def evaluate_group(
+    group,
+    data: LoadedDataset,
+    seed: int,
+    repeats: int,
+    folds: int,
+    time_limit: float | None = None,
+) -> GroupResult:
     """Evaluate every trial of a group on every outer fold.
 
     Parameters
@@ -143,12 +156,23 @@ def evaluate_group(group, data: LoadedDataset, seed: int, repeats: int, folds: i
         The study seed.
     repeats, folds : int
         The outer scheme.
+    time_limit : float, optional
+        Seconds the group may take; checked before every tree fit, so a group stops
+        within one fit of its limit and raises :class:`TrialTimeout`.
 
     Returns
     -------
     GroupResult
     """
     start = time.perf_counter()
+
+    def check_time() -> None:
+        if time_limit is not None and time.perf_counter() - start > time_limit:
+            raise TrialTimeout(
+                f"stopped: the trial group ran past the study's time_limit of {time_limit:g} s "
+                f"({time.perf_counter() - start:.1f} s)"
+            )
+
     classification = is_classification(data.task)
     classes = np.unique(data.y) if classification else None
     tree_class = DecisionTreeClassifier if classification else DecisionTreeRegressor
@@ -163,6 +187,7 @@ def evaluate_group(group, data: LoadedDataset, seed: int, repeats: int, folds: i
             min_samples_leaf=group.min_samples_leaf,
             random_state=tree_seed,
         )
+        check_time()
         t0 = time.perf_counter()
         full = clone(template).fit(X_train, y_train)
         fit_full = time.perf_counter() - t0
@@ -178,6 +203,7 @@ def evaluate_group(group, data: LoadedDataset, seed: int, repeats: int, folds: i
             risk=group.prune_risk,
             rules=group.rules,
             fitted=full,
+            before_fit=check_time,
         )
         fit_inner = time.perf_counter() - t0
         result.n_fits += selection.n_fits + 1

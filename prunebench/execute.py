@@ -140,6 +140,7 @@ class _Task:
     seed: int
     repeats: int
     folds: int
+    time_limit: float | None = None
 
 
 @dataclass
@@ -164,7 +165,9 @@ def _run_task(task: _Task) -> _Outcome:
                 f"dataset {task.dataset_name!r} loaded in a worker differs from the sweep's "
                 "(fingerprints differ)"
             )
-        result = evaluate_group(task.group, data, task.seed, task.repeats, task.folds)
+        result = evaluate_group(
+            task.group, data, task.seed, task.repeats, task.folds, task.time_limit
+        )
         return _Outcome(task.group, result, None, started, utc_now(), time.perf_counter() - t0)
     except Exception:  # noqa: BLE001 - a failed trial keeps its traceback; the sweep goes on
         return _Outcome(
@@ -187,21 +190,49 @@ class GroupRunner:
         Worker processes; 1 runs the groups in this process.
     on_group : callable, optional
         Called with each outcome after it is stored.
+    cluster : str or distributed.Client, optional
+        A Dask scheduler address (or a connected client): groups run on its workers
+        instead of a local pool; a lost worker's groups are rerun by the scheduler.
     """
 
-    def __init__(self, store, study, summary, progress, workers=1, on_group=None) -> None:
+    def __init__(
+        self, store, study, summary, progress, workers=1, on_group=None, cluster=None
+    ) -> None:
         self.store, self.study, self.summary = store, study, summary
         self.progress, self.workers, self.on_group = progress, workers, on_group
+        self.cluster = cluster
         self._pool = None
+        self._client = None
+        self._own_client = False
 
     def __enter__(self) -> GroupRunner:
-        if self.workers > 1:
+        if self.cluster is not None:
+            try:
+                from distributed import Client
+            except ImportError:
+                raise ConductError(
+                    "--cluster needs Dask's distributed scheduler: pip install 'prunebench[dask]'"
+                ) from None
+            if isinstance(self.cluster, str):
+                try:
+                    self._client = Client(self.cluster, timeout="10s")
+                except OSError as err:
+                    raise ConductError(
+                        f"cannot reach the Dask scheduler at {self.cluster}: {err}"
+                    ) from None
+                self._own_client = True
+            else:
+                self._client = self.cluster
+            self.workers = max(len(self._client.scheduler_info().get("workers", {})), 1)
+        elif self.workers > 1:
             self._pool = ProcessPoolExecutor(max_workers=self.workers)
         return self
 
     def __exit__(self, *exc) -> None:
         if self._pool is not None:
             self._pool.shutdown(cancel_futures=True)
+        if self._own_client:
+            self._client.close()
         self.progress.close()
 
     def _task(self, g: TrialGroup) -> _Task:
@@ -215,13 +246,28 @@ class GroupRunner:
             seed=self.study.seed,
             repeats=self.study.repeats,
             folds=self.study.folds,
+            time_limit=self.study.time_limit,
         )
 
     def run(self, groups: list[TrialGroup]) -> list[_Outcome]:
         """Evaluate groups (in parallel when there are workers) and store each outcome."""
         tasks = [self._task(g) for g in groups]
         outcomes = []
-        if self._pool is None or len(tasks) <= 1:
+        if self._client is not None:
+            from distributed import as_completed as completed
+
+            futures = {
+                self._client.submit(_run_task, task, pure=False, retries=2): task for task in tasks
+            }
+            for future in completed(list(futures)):
+                try:
+                    outcome = future.result()
+                except Exception:  # noqa: BLE001 - e.g. every worker it ran on was lost
+                    task = futures[future]
+                    now = utc_now()
+                    outcome = _Outcome(task.group, None, traceback.format_exc(), now, now, 0.0)
+                outcomes.append(self._store(outcome))
+        elif self._pool is None or len(tasks) <= 1:
             for task in tasks:
                 outcomes.append(self._store(_run_task(task)))
         else:
@@ -266,6 +312,7 @@ def conduct(
     retry_failed: bool = False,
     progress: Progress | None = None,
     on_group: Callable[[_Outcome], None] | None = None,
+    cluster=None,
 ) -> ConductSummary:
     """Run or resume a study; store every trial group as it finishes.
 
@@ -286,6 +333,9 @@ def conduct(
         Where to show progress; default a :class:`Progress` on stderr.
     on_group : callable, optional
         Called with each outcome after it is stored (used by tests and tools).
+    cluster : str or distributed.Client, optional
+        Run the groups on a Dask cluster (scheduler address); this process stays the
+        only writer, so the database is the same as for a local run.
 
     Returns
     -------
@@ -302,7 +352,7 @@ def conduct(
             from .search import run_search
 
             progress = progress or Progress(study.search.configurations * len(study.datasets))
-            with GroupRunner(store, study, summary, progress, workers, on_group) as runner:
+            with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
                 summary.search = run_search(study, store, runner, path)
             summary.total = len(store.statuses(study.study_id))
             summary.skipped = summary.total - summary.done - summary.failed
@@ -317,7 +367,7 @@ def conduct(
             summary.skipped = summary.total - todo
             progress = progress or Progress(todo)
             progress.total = todo
-            with GroupRunner(store, study, summary, progress, workers, on_group) as runner:
+            with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
                 runner.run(groups)
     summary.seconds = time.perf_counter() - start
     return summary

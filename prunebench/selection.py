@@ -190,6 +190,7 @@ def select_alpha(
     rules: list[str | SelectionRule] | tuple = ("1se",),
     sample_weight=None,
     fitted: BaseEstimator | None = None,
+    before_fit=None,
 ) -> AlphaSelection:
     """Choose the cost-complexity alpha of a tree by K-fold CV over CART's candidates.
 
@@ -210,6 +211,8 @@ def select_alpha(
         Used to grow the trees; validation losses are unweighted.
     fitted : estimator, optional
         ``T_max`` already grown on exactly these rows, to save one fit.
+    before_fit : callable, optional
+        Called before every fold's fit (a study's time limit checks its deadline here).
 
     Returns
     -------
@@ -226,6 +229,8 @@ def select_alpha(
     for train, test in splitter.split(X, y):
         sw = None if sample_weight is None else np.asarray(sample_weight)[train]
         X_train, y_train = _subset(X, train), _subset(y, train)
+        if before_fit is not None:
+            before_fit()
         fold_tree = clone(tree).fit(X_train, y_train, sample_weight=sw)
         n_fits += 1
         fold_path = pruning_path(fold_tree, risk, X_train, y_train, sw)

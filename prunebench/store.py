@@ -17,6 +17,7 @@ import os
 import platform
 import sqlite3
 import sys
+import time
 from pathlib import Path
 
 import sqlite_utils
@@ -153,6 +154,38 @@ class StoreError(PrunebenchError):
     exit_code = 1
 
 
+def _explain(path: Path, err: sqlite3.Error) -> StoreError:
+    """One clear line for what SQLite said, with what happened to the stored results."""
+    text = str(err)
+    kept = "the results stored before are intact"
+    if "full" in text:
+        return StoreError(
+            f"{path}: the disk or the database's size limit is full ({text}); "
+            f"{kept}: free space and run the same command again"
+        )
+    if "locked" in text or "busy" in text:
+        return StoreError(
+            f"{path} is locked by another program writing to it ({text}); "
+            f"{kept}: close that program and run the same command again"
+        )
+    if "readonly" in text or "read-only" in text or "unable to open" in text:
+        return StoreError(
+            f"{path} cannot be written (read-only file or folder, or no permission: {text}); {kept}"
+        )
+    if "malformed" in text or "not a database" in text or "corrupt" in text:
+        return StoreError(
+            f"{path} is damaged ({text}); prunebench will not write to it: "
+            "restore a copy, or start a new database"
+        )
+    return StoreError(f"{path}: cannot use this results database: {text}")
+
+
+# Fault injection for the reliability tests: with PRUNEBENCH_FAULT_WRITE_PAUSE set, each
+# group's transaction touches PRUNEBENCH_FAULT_MARKER and sleeps before it commits, so a
+# test can kill the process in the middle of a write. Never set in normal use.
+_PAUSE_ENV, _MARKER_ENV = "PRUNEBENCH_FAULT_WRITE_PAUSE", "PRUNEBENCH_FAULT_MARKER"
+
+
 def utc_now() -> str:
     """The current time as ISO 8601 UTC, to the millisecond."""
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
@@ -171,6 +204,9 @@ class ResultStore:
         Take the conducting lock: refuse if another process holds it.
     """
 
+    #: seconds a write waits for another program's lock before giving up
+    busy_timeout = 30.0
+
     def __init__(self, path: str | Path, *, readonly: bool = False, lock: bool = False) -> None:
         self.path = Path(path)
         self.readonly = readonly
@@ -184,19 +220,28 @@ class ResultStore:
                 conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True)
             else:
                 self.path.parent.mkdir(parents=True, exist_ok=True)
-                conn = sqlite3.connect(self.path, timeout=30)
+                conn = sqlite3.connect(self.path, timeout=self.busy_timeout)
             self.db = sqlite_utils.Database(conn)
             self._prepare()
-        except sqlite3.DatabaseError as err:
+        except sqlite3.Error as err:
             self._release_lock()
-            raise StoreError(f"{self.path}: cannot use this results database: {err}") from None
+            raise _explain(self.path, err) from None
+        except StoreError:
+            self._release_lock()
+            raise
 
     # -- opening --------------------------------------------------------------------------
 
     def _take_lock(self) -> None:
         lock_path = self.path.with_name(self.path.name + ".lock")
-        lock_path.parent.mkdir(parents=True, exist_ok=True)
-        handle = open(lock_path, "a+")
+        try:
+            lock_path.parent.mkdir(parents=True, exist_ok=True)
+            handle = open(lock_path, "a+")
+        except OSError as err:
+            raise StoreError(
+                f"{self.path} cannot be written: its lock file {lock_path.name} cannot be "
+                f"created ({err.strerror}); is the folder read-only?"
+            ) from None
         try:
             fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -275,10 +320,13 @@ class ResultStore:
         from . import __version__
 
         now = utc_now()
-        existing = self.db.conn.execute(
-            "SELECT seed, outer_repeats, outer_folds FROM studies WHERE study_id = ?",
-            [study.study_id],
-        ).fetchone()
+        try:
+            existing = self.db.conn.execute(
+                "SELECT seed, outer_repeats, outer_folds FROM studies WHERE study_id = ?",
+                [study.study_id],
+            ).fetchone()
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
         if existing:
             seed, repeats, folds = existing
             changed = []
@@ -292,60 +340,66 @@ class ResultStore:
                     f"{' and '.join(changed)}; keep them as they were, or give the study a new "
                     "name or a new database"
                 )
-        with self.db.conn:
-            if existing:
-                self.db.conn.execute(
-                    "UPDATE studies SET description = ?, study_text = ?, study_hash = ?, "
-                    "updated = ?, prunebench_version = ? WHERE study_id = ?",
-                    [
-                        study.description,
-                        study.text,
-                        study.text_hash,
-                        now,
-                        __version__,
-                        study.study_id,
-                    ],
-                )
-            else:
-                self.db["studies"].insert(
-                    {
-                        "study_id": study.study_id,
-                        "name": study.name,
-                        "description": study.description,
-                        "study_text": study.text,
-                        "study_hash": study.text_hash,
-                        "seed": study.seed,
-                        "outer_repeats": study.repeats,
-                        "outer_folds": study.folds,
-                        "created": now,
-                        "updated": now,
-                        "prunebench_version": __version__,
-                    }
-                )
-            for key, data in study.datasets.items():
-                self.db["datasets"].insert(
-                    {
-                        "dataset_id": self.dataset_id(key, data.fingerprint),
-                        "name": key,
-                        "params": json.dumps(data.params, sort_keys=True),
-                        "task": data.task,
-                        "rows": int(data.X.shape[0]),
-                        "features": int(data.X.shape[1]),
-                        "classes": data.n_classes,
-                        "source": data.info.source,
-                        "licence": data.info.licence,
-                        "citation": data.info.citation,
-                        "fingerprint": data.fingerprint,
-                    },
-                    ignore=True,
-                )
-            self._insert_trials(study, study.trials())
-            self._record_environment(study.study_id, now)
+        try:
+            with self.db.conn:
+                if existing:
+                    self.db.conn.execute(
+                        "UPDATE studies SET description = ?, study_text = ?, study_hash = ?, "
+                        "updated = ?, prunebench_version = ? WHERE study_id = ?",
+                        [
+                            study.description,
+                            study.text,
+                            study.text_hash,
+                            now,
+                            __version__,
+                            study.study_id,
+                        ],
+                    )
+                else:
+                    self.db["studies"].insert(
+                        {
+                            "study_id": study.study_id,
+                            "name": study.name,
+                            "description": study.description,
+                            "study_text": study.text,
+                            "study_hash": study.text_hash,
+                            "seed": study.seed,
+                            "outer_repeats": study.repeats,
+                            "outer_folds": study.folds,
+                            "created": now,
+                            "updated": now,
+                            "prunebench_version": __version__,
+                        }
+                    )
+                for key, data in study.datasets.items():
+                    self.db["datasets"].insert(
+                        {
+                            "dataset_id": self.dataset_id(key, data.fingerprint),
+                            "name": key,
+                            "params": json.dumps(data.params, sort_keys=True),
+                            "task": data.task,
+                            "rows": int(data.X.shape[0]),
+                            "features": int(data.X.shape[1]),
+                            "classes": data.n_classes,
+                            "source": data.info.source,
+                            "licence": data.info.licence,
+                            "citation": data.info.citation,
+                            "fingerprint": data.fingerprint,
+                        },
+                        ignore=True,
+                    )
+                self._insert_trials(study, study.trials())
+                self._record_environment(study.study_id, now)
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
 
     def add_trials(self, study, trials) -> None:
         """Record more trials of a registered study as ``pending`` (existing ones are kept)."""
-        with self.db.conn:
-            self._insert_trials(study, trials)
+        try:
+            with self.db.conn:
+                self._insert_trials(study, trials)
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
 
     def _insert_trials(self, study, trials) -> None:
         self.db["trials"].insert_all(
@@ -390,10 +444,13 @@ class ResultStore:
 
     def statuses(self, study_id: str) -> dict[str, str]:
         """trial_id -> status for a study."""
-        rows = self.db.conn.execute(
-            "SELECT trial_id, status FROM trials WHERE study_id = ?", [study_id]
-        )
-        return dict(rows.fetchall())
+        try:
+            rows = self.db.conn.execute(
+                "SELECT trial_id, status FROM trials WHERE study_id = ?", [study_id]
+            )
+            return dict(rows.fetchall())
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
 
     def save_group(self, result, trials, started: str, finished: str) -> None:
         """Store a finished group: its fold and curve rows and ``done``, in one transaction.
@@ -402,27 +459,36 @@ class ResultStore:
         """
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
-        with self.db.conn:
-            self.db.conn.execute(f"DELETE FROM folds WHERE trial_id IN ({marks})", ids)
-            self.db.conn.execute("DELETE FROM curves WHERE group_id = ?", [result.group_id])
-            self.db["folds"].insert_all(result.folds, batch_size=500)
-            self.db["curves"].insert_all(result.curves, batch_size=500)
-            self.db.conn.execute(
-                f"UPDATE trials SET status = 'done', error = NULL, started = ?, finished = ?, "
-                f"seconds = ? WHERE trial_id IN ({marks})",
-                [started, finished, result.seconds, *ids],
-            )
+        try:
+            with self.db.conn:
+                self.db.conn.execute(f"DELETE FROM folds WHERE trial_id IN ({marks})", ids)
+                self.db.conn.execute("DELETE FROM curves WHERE group_id = ?", [result.group_id])
+                self.db["folds"].insert_all(result.folds, batch_size=500)
+                self.db["curves"].insert_all(result.curves, batch_size=500)
+                self.db.conn.execute(
+                    f"UPDATE trials SET status = 'done', error = NULL, started = ?, "
+                    f"finished = ?, seconds = ? WHERE trial_id IN ({marks})",
+                    [started, finished, result.seconds, *ids],
+                )
+                if os.environ.get(_PAUSE_ENV):
+                    Path(os.environ[_MARKER_ENV]).touch()
+                    time.sleep(float(os.environ[_PAUSE_ENV]))
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
 
     def save_failure(self, trials, error: str, started: str, finished: str, seconds: float) -> None:
         """Mark trials ``failed`` with the error text (a traceback), in one transaction."""
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
-        with self.db.conn:
-            self.db.conn.execute(
-                f"UPDATE trials SET status = 'failed', error = ?, started = ?, finished = ?, "
-                f"seconds = ? WHERE trial_id IN ({marks})",
-                [error, started, finished, seconds, *ids],
-            )
+        try:
+            with self.db.conn:
+                self.db.conn.execute(
+                    f"UPDATE trials SET status = 'failed', error = ?, started = ?, finished = ?, "
+                    f"seconds = ? WHERE trial_id IN ({marks})",
+                    [error, started, finished, seconds, *ids],
+                )
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
 
     # -- reading ----------------------------------------------------------------------------
 

@@ -78,7 +78,17 @@ _DEFAULTS = {
     },
 }
 FACTORS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk")
-_TOP_KEYS = {"name", "description", "seed", "database", "datasets", "outer", "factors", "search"}
+_TOP_KEYS = {
+    "name",
+    "description",
+    "seed",
+    "database",
+    "datasets",
+    "outer",
+    "factors",
+    "search",
+    "time_limit",
+}
 _SAMPLERS = ("tpe", "random", "grid")
 _SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
 _SPACE_KEYS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "se", "prune_risk")
@@ -190,6 +200,11 @@ class Study:
     path : Path or None
     database : Path or None
         From the file, resolved against its folder.
+    search : SearchSpec or None
+        The ``[search]`` section, when the study searches instead of sweeping.
+    time_limit : float or None
+        Seconds each trial group may take (``time_limit``); a group past it is stopped
+        and its trials are stored as failed with the reason.
     """
 
     name: str
@@ -204,6 +219,7 @@ class Study:
     path: Path | None = None
     database: Path | None = None
     search: SearchSpec | None = None
+    time_limit: float | None = None
     _trials: list[Trial] = field(default_factory=list, repr=False)
 
     @property
@@ -581,6 +597,11 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     seed = doc["seed"]
     if not _is_int(seed) or not 0 <= seed < 2**32:
         raise check.fail("seed", f"must be an integer in [0, 2**32); got {seed!r}")
+    time_limit = doc.get("time_limit")
+    if time_limit is not None and (
+        isinstance(time_limit, bool) or not isinstance(time_limit, (int, float)) or time_limit <= 0
+    ):
+        raise check.fail("time_limit", f"must be a number of seconds > 0; got {time_limit!r}")
     database = doc.get("database")
     if database is not None and (not isinstance(database, str) or not database.strip()):
         raise check.fail("database", "must be a file path")
@@ -725,6 +746,7 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         text=text,
         database=Path(os.path.normpath(base / database)) if database else None,
         search=search,
+        time_limit=float(time_limit) if time_limit is not None else None,
     )
 
 

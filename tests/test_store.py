@@ -141,7 +141,7 @@ def test_newer_schema_and_foreign_files_are_refused(tmp_path):
         ResultStore(foreign)
     garbage = tmp_path / "garbage.sqlite"
     garbage.write_bytes(b"this is not a database" * 100)
-    with pytest.raises(StoreError, match="cannot use this results database"):
+    with pytest.raises(StoreError, match="is damaged"):
         ResultStore(garbage)
     assert garbage.read_bytes() == b"this is not a database" * 100
 
