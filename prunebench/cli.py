@@ -412,35 +412,6 @@ def compare(database, study, metric, as_json, as_csv) -> None:
     from .stats import HIGHER_IS_BETTER, comparison, config_label
 
     table = comparison(_load_folds(database, study), metric)
-    columns = [
-        "dataset",
-        "task",
-        "criterion",
-        "max_depth",
-        "min_samples_leaf",
-        "inner_folds",
-        "rule",
-        "prune_risk",
-        "metric",
-        "mean_pruned",
-        "mean_unpruned",
-        "diff",
-        "ci_low",
-        "ci_high",
-        "p_value",
-        "p_holm",
-        "naive_ci_low",
-        "naive_ci_high",
-        "naive_p_value",
-        "verdict",
-        "leaves_pruned",
-        "leaves_unpruned",
-        "leaves_saved",
-        "leaves_saved_ci_low",
-        "leaves_saved_ci_high",
-        "n_folds",
-    ]
-    table = table[columns]
     if _emit(table, as_json, as_csv):
         return
     for m, rows in table.groupby("metric", sort=False):

@@ -380,35 +380,26 @@ def alpha_by_rule(folds: pd.DataFrame) -> plt.Figure:
     pruned["alpha_plot"] = np.where(pruned["alpha"] > 0, pruned["alpha"], floor)
     fig, axes = plt.subplots(1, 2, figsize=(11, 4.2), layout="constrained")
     palette = dict(zip(rules, sns.color_palette(_PALETTE, len(rules)), strict=True))
-    sns.boxplot(
-        data=pruned,
-        x="rule",
-        y="alpha_plot",
-        hue="rule",
-        order=rules,
-        palette=palette,
-        ax=axes[0],
-        legend=False,
-        fliersize=2,
-    )
-    axes[0].set_yscale("log")
-    axes[0].set_ylabel("chosen alpha (log scale; 0 drawn at the bottom)")
-    axes[0].set_title("Chosen alpha", fontsize=10)
-    sns.boxplot(
-        data=pruned,
-        x="rule",
-        y="n_leaves",
-        hue="rule",
-        order=rules,
-        palette=palette,
-        ax=axes[1],
-        legend=False,
-        fliersize=2,
-    )
-    axes[1].set_yscale("log")
+    panels = [
+        ("alpha_plot", "chosen alpha (log scale; 0 drawn at the bottom)", "Chosen alpha"),
+        ("n_leaves", "pruned tree size (leaves, log scale)", "Pruned tree size"),
+    ]
+    for ax, (column, label, title) in zip(axes, panels, strict=True):
+        sns.boxplot(
+            data=pruned,
+            x="rule",
+            y=column,
+            hue="rule",
+            order=rules,
+            palette=palette,
+            ax=ax,
+            legend=False,
+            fliersize=2,
+        )
+        ax.set_yscale("log")
+        ax.set_ylabel(label)
+        ax.set_title(title, fontsize=10)
     _plain_log(axes[1].yaxis)
-    axes[1].set_ylabel("pruned tree size (leaves, log scale)")
-    axes[1].set_title("Pruned tree size", fontsize=10)
     for ax in axes:
         ax.set_xlabel("alpha rule")
     fig.suptitle("Chosen alpha and tree size by rule (all outer folds and configurations)")

@@ -198,29 +198,18 @@ def build_report(store: ResultStore, study: str | None = None) -> str:
         "<p>diff = pruned − unpruned; CI by corrected resampled t (Nadeau &amp; Bengio "
         "2003); the naive CI treats folds as independent and is too narrow.</p>"
     )
-    view = table[
-        [
-            "dataset",
-            "criterion",
-            "max_depth",
-            "min_samples_leaf",
-            "inner_folds",
-            "rule",
-            "prune_risk",
-            "metric",
-            "mean_pruned",
-            "mean_unpruned",
-            "diff",
-            "ci_low",
-            "ci_high",
-            "naive_ci_low",
-            "naive_ci_high",
-            "p_value",
-            "p_holm",
-            "verdict",
-            "leaves_saved",
-        ]
-    ]
+    # the report's table leaves out the per-arm intervals; the CSV export has every column
+    shown = (
+        "pruned_ci",
+        "unpruned_ci",
+        "leaves_saved_ci",
+        "leaves_pruned",
+        "leaves_unpruned",
+        "naive_p_value",
+        "task",
+        "n_folds",
+    )
+    view = table[[c for c in table.columns if not c.startswith(shown)]]
     parts.append(
         '<div class="scroll">'
         + _table(view, left=("dataset", "criterion", "rule", "prune_risk", "metric", "verdict"))

@@ -29,6 +29,7 @@ from .exceptions import PrunebenchError
 from .store import ResultStore
 
 __all__ = [
+    "COMPARISON_COLUMNS",
     "CONFIG",
     "HIGHER_IS_BETTER",
     "ROPE",
@@ -62,6 +63,36 @@ _METRICS = {
     "classification": ["error", "accuracy", "balanced_accuracy", "log_loss", "brier"],
     "regression": ["mse", "mae", "r2"],
 }
+
+
+#: the columns of :func:`comparison`'s table, in the order the commands print them
+COMPARISON_COLUMNS = [
+    "dataset",
+    "task",
+    *CONFIG,
+    "metric",
+    "mean_pruned",
+    "mean_unpruned",
+    "diff",
+    "ci_low",
+    "ci_high",
+    "p_value",
+    "p_holm",
+    "naive_ci_low",
+    "naive_ci_high",
+    "naive_p_value",
+    "verdict",
+    "pruned_ci_low",
+    "pruned_ci_high",
+    "unpruned_ci_low",
+    "unpruned_ci_high",
+    "leaves_pruned",
+    "leaves_unpruned",
+    "leaves_saved",
+    "leaves_saved_ci_low",
+    "leaves_saved_ci_high",
+    "n_folds",
+]
 
 
 class StatsError(PrunebenchError):
@@ -449,8 +480,8 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         )
         out.append(row)
     table = pd.DataFrame(out)
-    table.insert(table.columns.get_loc("p_value") + 1, "p_holm", holm(table["p_value"]))
-    return table
+    table["p_holm"] = holm(table["p_value"])
+    return table[COMPARISON_COLUMNS]
 
 
 def compare_configurations(

@@ -385,23 +385,14 @@ def _levels(check: _Checker, key: str, value: object) -> list:
     return value
 
 
-def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str | None) -> list:
+def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str) -> list:
     for v in levels:
-        if name == "criterion":
-            allowed = _CRITERIA[task] if task else CLASSIFICATION_CRITERIA + REGRESSION_CRITERIA
+        if name in ("criterion", "prune_risk"):
+            allowed = (_CRITERIA if name == "criterion" else _RISKS)[task]
+            what = "criterion" if name == "criterion" else "pruning risk"
             if v not in allowed:
                 raise check.fail(
-                    key,
-                    f"{v!r} is not a {task or ''} criterion; use one of "
-                    f"{', '.join(allowed)}".replace("a  ", "a "),
-                )
-        elif name == "prune_risk":
-            allowed = _RISKS[task] if task else ("error", "impurity", "squared_error")
-            if v not in allowed:
-                raise check.fail(
-                    key,
-                    f"{v!r} is not a {task or ''} pruning risk; use one of "
-                    f"{', '.join(allowed)}".replace("a  ", "a "),
+                    key, f"{v!r} is not a {task} {what}; use one of {', '.join(allowed)}"
                 )
         elif name == "max_depth":
             if not (v == "none" or (_is_int(v) and v >= 1)):
