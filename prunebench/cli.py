@@ -315,6 +315,11 @@ def conduct(study_file, database, workers, retry_failed, cluster) -> None:
             f"{row[('n_leaves', 'pruned')]:>13.1f}"
         )
     click.echo("(test metric and leaves: means over every configuration and outer fold)")
+    db = summary.database
+    click.echo(
+        f"next: prunebench compare --db {db}   |   prunebench recommend --db {db}   |   "
+        f"prunebench report --db {db} --out report.html"
+    )
 
 
 def _caution() -> str:
