@@ -379,7 +379,9 @@ def _emit(frame, as_json: bool, as_csv: bool) -> bool:
 
 
 def _fmt(value, spec: str) -> str:
-    if value is None or value != value:
+    import pandas as pd
+
+    if value is None or pd.isna(value):
         return "-"
     return format(value, spec)
 

@@ -58,12 +58,18 @@ def _main_family(folds: pd.DataFrame) -> tuple[pd.DataFrame, str]:
     return rows, default_metric("regression" if family == "regression" else "binary")
 
 
-def _top_configs(folds: pd.DataFrame, n: int = MAX_CONFIGS) -> list[tuple]:
-    """The n best pruned configurations of the main task family by mean rank."""
+def _main_ranking(folds: pd.DataFrame) -> dict:
+    """The ranking of the main task family (see :func:`_main_family`)."""
     rows, _ = _main_family(folds)
     family = _family(rows["task"].iloc[0])
-    ranked = next(r for r in ranking(rows) if r["family"] == family)
-    table = ranked["table"]
+    return next(r for r in ranking(rows) if r["family"] == family)
+
+
+def _top_configs(
+    folds: pd.DataFrame, n: int = MAX_CONFIGS, ranked: dict | None = None
+) -> list[tuple]:
+    """The n best pruned configurations of the main task family by mean rank."""
+    table = (ranked or _main_ranking(folds))["table"]
     pruned = table[table["rule"] != "unpruned"]
     return list(pruned["config"].head(n))
 
@@ -286,7 +292,7 @@ def factor_heatmaps(table: pd.DataFrame) -> plt.Figure:
     """
     metric = table["metric"].iloc[0]
     table = table.assign(
-        depth=table["max_depth"].map(lambda d: "none" if d is None or d != d else str(int(d)))
+        depth=table["max_depth"].map(lambda d: "none" if pd.isna(d) else str(int(d)))
     )
     pairs = [
         ("criterion", "depth", "criterion × depth limit"),
@@ -417,7 +423,9 @@ FIGURES = {
 }
 
 
-def build_figures(folds: pd.DataFrame, curves: pd.DataFrame) -> dict[str, plt.Figure]:
+def build_figures(
+    folds: pd.DataFrame, curves: pd.DataFrame, ranked: dict | None = None
+) -> dict[str, plt.Figure]:
     """Every summary figure of a study.
 
     Parameters
@@ -426,6 +434,8 @@ def build_figures(folds: pd.DataFrame, curves: pd.DataFrame) -> dict[str, plt.Fi
         From :func:`prunebench.stats.load_folds`.
     curves : DataFrame
         The ``curves`` rows of one trial group, with a ``context`` attribute for the title.
+    ranked : dict, optional
+        The main family's ranking, when the caller has it already.
 
     Returns
     -------
@@ -434,9 +444,8 @@ def build_figures(folds: pd.DataFrame, curves: pd.DataFrame) -> dict[str, plt.Fi
     """
     rows, _ = _main_family(folds)
     table = comparison(rows)
-    configs = _top_configs(folds)
-    family = _family(rows["task"].iloc[0])
-    ranked = next(r for r in ranking(rows) if r["family"] == family)
+    ranked = ranked or _main_ranking(folds)
+    configs = _top_configs(folds, ranked=ranked)
     return {
         "pruning_curves": pruning_curves(curves, curves.attrs.get("context", "")),
         "difference_by_dataset": difference_by_dataset(table, configs),
@@ -447,9 +456,9 @@ def build_figures(folds: pd.DataFrame, curves: pd.DataFrame) -> dict[str, plt.Fi
     }
 
 
-def example_curves(store, folds: pd.DataFrame) -> pd.DataFrame:
+def example_curves(store, folds: pd.DataFrame, ranked: dict | None = None) -> pd.DataFrame:
     """The curves of the best pruned configuration on the first data set."""
-    config = _top_configs(folds, 1)[0]
+    config = _top_configs(folds, 1, ranked)[0]
     rows, _ = _main_family(folds)
     dataset = sorted(rows["dataset"].unique())[0]
     match = rows[(rows["dataset"] == dataset) & (rows["arm"] == "pruned")]
@@ -483,7 +492,8 @@ def write_figures(store, folds: pd.DataFrame, out: str | Path) -> list[Path]:
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     written = []
-    for name, fig in build_figures(folds, example_curves(store, folds)).items():
+    ranked = _main_ranking(folds)
+    for name, fig in build_figures(folds, example_curves(store, folds, ranked), ranked).items():
         for ext in ("png", "svg"):
             path = out / f"{name}.{ext}"
             fig.savefig(path, dpi=110 if ext == "png" else None)

@@ -122,7 +122,8 @@ def build_report(store: ResultStore, study: str | None = None) -> str:
     )
     recs = recommendation(folds)
     table = comparison(folds)
-    figures = build_figures(folds, example_curves(store, folds))
+    main_family = recs[0]["ranking"]  # classification first, as the figures show it
+    figures = build_figures(folds, example_curves(store, folds, main_family), main_family)
 
     parts = [
         f'<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'

@@ -140,14 +140,37 @@ class TTest:
     n_folds: int
 
 
-def _t_summary(mean: float, se: float, df: int, alpha: float) -> tuple[float, float, float]:
-    if df < 1 or not np.isfinite(se):
-        return np.nan, np.nan, np.nan
-    if se == 0:
-        return mean, mean, (1.0 if mean == 0 else 0.0)
-    q = sps.t.ppf(1 - alpha / 2, df)
-    p = 2 * sps.t.sf(abs(mean) / se, df)
-    return mean - q * se, mean + q * se, float(p)
+def _t_interval(mean, se, df, alpha: float):
+    """Vectorised two-sided t interval and p-value; NaN where df < 1 or se is unknown."""
+    mean, se, df = (np.asarray(v, dtype=float) for v in (mean, se, df))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = sps.t.ppf(1 - alpha / 2, np.where(df >= 1, df, np.nan))
+        p = 2 * sps.t.sf(np.abs(mean) / se, np.where(df >= 1, df, np.nan))
+    lo, hi = mean - q * se, mean + q * se
+    exact = se == 0  # every fold agrees: the interval is the point
+    p = np.where(exact, np.where(mean == 0, 1.0, 0.0), p)
+    lo, hi = np.where(exact, mean, lo), np.where(exact, mean, hi)
+    bad = (df < 1) | ~np.isfinite(se)
+    return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi), np.where(bad, np.nan, p)
+
+
+def _corrected(mean, s2, j, ratio, alpha: float) -> dict:
+    """Corrected and naive standard errors, intervals and p-values, as arrays."""
+    mean, s2, j, ratio = (np.asarray(v, dtype=float) for v in (mean, s2, j, ratio))
+    se = np.sqrt((1 / j + ratio) * s2)
+    naive_se = np.sqrt(s2 / j)
+    lo, hi, p = _t_interval(mean, se, j - 1, alpha)
+    nlo, nhi, np_ = _t_interval(mean, naive_se, j - 1, alpha)
+    return {
+        "se": se,
+        "ci_low": lo,
+        "ci_high": hi,
+        "p_value": p,
+        "naive_se": naive_se,
+        "naive_ci_low": nlo,
+        "naive_ci_high": nhi,
+        "naive_p_value": np_,
+    }
 
 
 def corrected_ttest(values, n_train, n_test, alpha: float = 0.05) -> TTest:
@@ -171,11 +194,20 @@ def corrected_ttest(values, n_train, n_test, alpha: float = 0.05) -> TTest:
     ratio = float(np.mean(np.asarray(n_test, float) / np.asarray(n_train, float)))
     mean = float(d.mean())
     s2 = float(d.var(ddof=1)) if j > 1 else np.nan
-    se = float(np.sqrt((1 / j + ratio) * s2))
-    naive_se = float(np.sqrt(s2 / j))
-    lo, hi, p = _t_summary(mean, se, j - 1, alpha)
-    nlo, nhi, np_ = _t_summary(mean, naive_se, j - 1, alpha)
-    return TTest(mean, se, lo, hi, p, naive_se, nlo, nhi, np_, j - 1, j)
+    r = {k: float(v) for k, v in _corrected(mean, s2, j, ratio, alpha).items()}
+    return TTest(
+        mean,
+        r["se"],
+        r["ci_low"],
+        r["ci_high"],
+        r["p_value"],
+        r["naive_se"],
+        r["naive_ci_low"],
+        r["naive_ci_high"],
+        r["naive_p_value"],
+        j - 1,
+        j,
+    )
 
 
 def holm(p_values) -> np.ndarray:
@@ -295,8 +327,8 @@ def bayesian_signed_rank(
     weights = np.ones(z.size)
     weights[0] = prior
     w = np.random.default_rng(seed).dirichlet(weights, nsamples)
-    p_above = np.einsum("si,ij,sj->s", w, above, w)
-    p_below = np.einsum("si,ij,sj->s", w, below, w)
+    p_above = ((w @ above) * w).sum(axis=1)
+    p_below = ((w @ below) * w).sum(axis=1)
     p_inside = 1 - p_above - p_below
     winner = np.argmax(np.vstack([p_above, p_inside, p_below]), axis=0)
     share = np.bincount(winner, minlength=3) / nsamples
@@ -430,56 +462,56 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         with its corrected CI, and ``n_folds``.
     """
     folds, tasks = _metric_rows(folds, metric)
-    out = []
-    keys = ["dataset", *CONFIG]
-    for key, group in folds.groupby(keys, dropna=False, sort=True):
-        task = group["task"].iloc[0]
-        m = tasks[task]
-        wide = group.pivot_table(
-            index=["repeat", "fold"], columns="arm", values=[m, "n_leaves", "n_train", "n_test"]
-        )
-        pruned, unpruned = wide[(m, "pruned")], wide[(m, "unpruned")]
-        n_train, n_test = wide[("n_train", "pruned")], wide[("n_test", "pruned")]
-        diff = corrected_ttest(pruned - unpruned, n_train, n_test, alpha)
-        arm_p = corrected_ttest(pruned, n_train, n_test, alpha)
-        arm_u = corrected_ttest(unpruned, n_train, n_test, alpha)
-        saved = wide[("n_leaves", "unpruned")] - wide[("n_leaves", "pruned")]
-        saved_t = corrected_ttest(saved, n_train, n_test, alpha)
-        better_low = m not in HIGHER_IS_BETTER
-        if diff.ci_high < 0:
-            verdict = "pruned better" if better_low else "unpruned better"
-        elif diff.ci_low > 0:
-            verdict = "unpruned better" if better_low else "pruned better"
-        else:
-            verdict = "no evidence either way"
-        row = dict(zip(keys, key, strict=True))
-        row["max_depth"] = None if pd.isna(row["max_depth"]) else int(row["max_depth"])
-        row.update(
-            task=task,
-            metric=m,
-            mean_pruned=arm_p.mean,
-            mean_unpruned=arm_u.mean,
-            diff=diff.mean,
-            ci_low=diff.ci_low,
-            ci_high=diff.ci_high,
-            p_value=diff.p_value,
-            naive_ci_low=diff.naive_ci_low,
-            naive_ci_high=diff.naive_ci_high,
-            naive_p_value=diff.naive_p_value,
-            verdict=verdict,
-            pruned_ci_low=arm_p.ci_low,
-            pruned_ci_high=arm_p.ci_high,
-            unpruned_ci_low=arm_u.ci_low,
-            unpruned_ci_high=arm_u.ci_high,
-            leaves_pruned=float(wide[("n_leaves", "pruned")].mean()),
-            leaves_unpruned=float(wide[("n_leaves", "unpruned")].mean()),
-            leaves_saved=saved_t.mean,
-            leaves_saved_ci_low=saved_t.ci_low,
-            leaves_saved_ci_high=saved_t.ci_high,
-            n_folds=diff.n_folds,
-        )
-        out.append(row)
-    table = pd.DataFrame(out)
+    folds = folds.assign(metric=folds["task"].map(tasks))
+    folds["value"] = np.nan
+    for task, m in tasks.items():
+        rows = folds["task"] == task
+        folds.loc[rows, "value"] = folds.loc[rows, m]
+    pruned = folds[folds["arm"] == "pruned"]
+    unpruned = folds[folds["arm"] == "unpruned"][
+        ["trial_id", "repeat", "fold", "value", "n_leaves"]
+    ]
+    both = pruned.merge(unpruned, on=["trial_id", "repeat", "fold"], suffixes=("", "_u"))
+    both["d"] = both["value"] - both["value_u"]
+    both["saved"] = both["n_leaves_u"] - both["n_leaves"]
+    both["ratio"] = both["n_test"] / both["n_train"]
+    g = both.groupby("trial_id", sort=False)
+    agg = g.agg(
+        mean_pruned=("value", "mean"),
+        var_pruned=("value", "var"),
+        mean_unpruned=("value_u", "mean"),
+        var_unpruned=("value_u", "var"),
+        diff=("d", "mean"),
+        var_diff=("d", "var"),
+        n_folds=("d", "size"),
+        ratio=("ratio", "mean"),
+        leaves_pruned=("n_leaves", "mean"),
+        leaves_unpruned=("n_leaves_u", "mean"),
+        leaves_saved=("saved", "mean"),
+        var_saved=("saved", "var"),
+    )
+    meta = pruned.drop_duplicates("trial_id").set_index("trial_id")[
+        ["dataset", "task", *CONFIG, "metric"]
+    ]
+    table = meta.join(agg)
+    n, ratio = table["n_folds"], table["ratio"]
+    diff = _corrected(table["diff"], table["var_diff"], n, ratio, alpha)
+    for k in ("ci_low", "ci_high", "p_value", "naive_ci_low", "naive_ci_high", "naive_p_value"):
+        table[k] = diff[k]
+    for arm in ("pruned", "unpruned"):
+        r = _corrected(table[f"mean_{arm}"], table[f"var_{arm}"], n, ratio, alpha)
+        table[f"{arm}_ci_low"], table[f"{arm}_ci_high"] = r["ci_low"], r["ci_high"]
+    saved = _corrected(table["leaves_saved"], table["var_saved"], n, ratio, alpha)
+    table["leaves_saved_ci_low"], table["leaves_saved_ci_high"] = saved["ci_low"], saved["ci_high"]
+    lower_better = ~table["metric"].isin(HIGHER_IS_BETTER)
+    below, above = table["ci_high"] < 0, table["ci_low"] > 0
+    table["verdict"] = np.select(
+        [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
+        ["pruned better", "pruned better", "unpruned better", "unpruned better"],
+        "no evidence either way",
+    )
+    table = table.sort_values(["dataset", *CONFIG], na_position="last").reset_index(drop=True)
+    table["max_depth"] = table["max_depth"].astype("Int64")
     table["p_holm"] = holm(table["p_value"])
     return table[COMPARISON_COLUMNS]
 
@@ -547,7 +579,8 @@ def _config_scores(folds: pd.DataFrame, metric: str) -> tuple[pd.DataFrame, pd.D
         ["dataset", "criterion", "max_depth", "min_samples_leaf", "repeat", "fold"]
     )
     both = pd.concat([pruned, unpruned], ignore_index=True)
-    both["config"] = [_config_key(r) for _, r in both[CONFIG].iterrows()]
+    columns = [both[c].astype(object).where(both[c].notna(), None) for c in CONFIG]
+    both["config"] = list(zip(*columns, strict=True))
     means = both.pivot_table(index="dataset", columns="config", values=metric, aggfunc="mean")
     leaves = both.pivot_table(index="dataset", columns="config", values="n_leaves", aggfunc="mean")
     return means, leaves
