@@ -197,10 +197,14 @@ def _collapse_points(
         keep = ~nxt_same
         par, a, sum_slope, sum_risk = par[keep], a[keep], sum_slope[keep], sum_risk[keep]
 
-        start = np.flatnonzero(np.r_[True, par[1:] != par[:-1]])
-        group = np.cumsum(np.r_[True, par[1:] != par[:-1]]) - 1
-        a_next = np.r_[a[1:], np.inf]
-        a_next[np.r_[start[1:] - 1, par.size - 1]] = np.inf
+        new_group = np.empty(par.size, bool)
+        new_group[0] = True
+        np.not_equal(par[1:], par[:-1], out=new_group[1:])
+        start = np.flatnonzero(new_group)
+        group = np.cumsum(new_group) - 1
+        a_next = np.empty_like(a)
+        a_next[:-1] = a[1:]
+        a_next[start - 1] = np.inf  # the last piece of each group (start[0] - 1 is the end)
         gain = risk[par] - sum_risk
         # a split that lowers the risk only by rounding noise is worth nothing
         gain[gain <= _GAIN_RTOL * np.abs(risk[par])] = 0.0
