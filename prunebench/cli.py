@@ -35,9 +35,11 @@ def _reports_errors(command):
 def main() -> None:
     """prunebench: evidence for how decision trees are grown and pruned by default.
 
-    Grow a tree, prune it by weakest link at an alpha chosen by K-fold
-    cross-validation (minimum-error or k-standard-error rule), and compare the
-    choices.
+    Write a study file that sweeps the criterion, depth limit, leaf size, inner folds,
+    alpha rule and pruning risk over datasets; 'check' it, 'conduct' it (nested,
+    repeated CV; every trial kept in SQLite; resumable), then read the evidence with
+    'compare', 'rank', 'recommend', 'figures' and 'report', or query it with 'sql',
+    'export' and 'progress'. 'datasets' lists the data; 'demo' fits one pruned tree.
     """
 
 

@@ -48,3 +48,16 @@ def test_demo_bad_rule_is_one_line_and_exit_2():
     assert result.exit_code == 2
     assert result.output.strip().count("\n") == 0
     assert "'rule'" in result.output
+
+
+def test_datasets_lists_every_kind_as_json():
+    import json
+
+    result = CliRunner().invoke(main, ["datasets", "--json"])
+    assert result.exit_code == 0
+    rows = {r["name"]: r for r in json.loads(result.output)}
+    assert {r["kind"] for r in rows.values()} == {"bundled", "vendored", "simulated"}
+    assert (rows["letter"]["rows"], rows["letter"]["classes"]) == (20000, 26)
+    assert rows["twonorm"]["task"] == "binary" and rows["twonorm"]["params"]["n_samples"] == 1000
+    table = CliRunner().invoke(main, ["datasets"]).output.splitlines()
+    assert table[0].split()[:3] == ["name", "kind", "task"] and len(table) == len(rows) + 1
