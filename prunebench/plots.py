@@ -75,9 +75,16 @@ def _top_configs(
 
 
 def _plain_log(axis) -> None:
-    """Log-scale ticks written as plain numbers (4, 10, 40) rather than 4×10^0."""
-    formatter = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
-    axis.set_major_formatter(formatter)
+    """Log-scale ticks written as plain numbers (4, 10, 40) rather than 4×10^0.
+
+    Call after plotting: on an axis spanning less than about a decade and a half the
+    ticks also fall on 2 and 5 times the powers of ten, so the axis is never bare.
+    """
+    lo, hi = sorted(abs(v) for v in axis.get_view_interval())
+    narrow = lo > 0 and np.log10(hi / lo) < 1.5
+    subs = (1.0, 2.0, 3.0, 5.0) if narrow else (1.0,)
+    axis.set_major_locator(matplotlib.ticker.LogLocator(base=10, subs=subs))
+    axis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
     axis.set_minor_formatter(matplotlib.ticker.NullFormatter())
 
 
@@ -277,7 +284,14 @@ def size_against_error(folds: pd.DataFrame, metric: str | None = None) -> plt.Fi
         ax.set_ylabel(f"test {metric}")
     for ax in axes.flat[len(datasets) :]:
         ax.set_visible(False)
-    axes.flat[0].legend(fontsize=8)
+    # one legend for all panels, outside them, so it hides no point
+    fig.legend(
+        *axes.flat[0].get_legend_handles_labels(),
+        loc="outside upper right",
+        fontsize=8,
+        title="arm",
+        title_fontsize=8,
+    )
     fig.suptitle(f"Tree size against test {metric}, per configuration and arm")
     return fig
 

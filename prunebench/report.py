@@ -42,7 +42,8 @@ td.l, th.l { text-align: left; }
 pre { background: #f1eee6; padding: 10px; overflow-x: auto; font-size: 12px; }
 figure { margin: 18px 0; } figcaption { font-size: 13px; color: #555; }
 img { max-width: 100%; border: 1px solid #ddd6c3; background: white; }
-.scroll { max-height: 420px; overflow-y: auto; display: inline-block; }
+.scroll { max-height: 480px; max-width: 100%; overflow: auto; }
+.scroll td, .scroll th { white-space: nowrap; }
 """
 
 
