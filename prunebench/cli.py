@@ -257,7 +257,7 @@ def check(study_file, workers) -> None:
     default=None,
     metavar="ADDRESS",
     help="Run the trial groups on a Dask cluster (scheduler address, e.g. "
-    "tcp://10.0.0.5:8786); needs prunebench[dask].",
+    "tcp://scheduler-host:8786); needs prunebench[dask].",
 )
 @_reports_errors
 def conduct(study_file, database, workers, retry_failed, cluster) -> None:
