@@ -56,6 +56,8 @@ _LEAF = -1
 _ALPHA_RTOL = 1e-10
 # A subtree whose risk is below its root's by less than this share has no gain.
 _GAIN_RTOL = 1e-12
+# Node risks below this share of the root's are rounding noise of a pure node.
+_RISK_RTOL = 1e-14
 
 
 def node_risks(
@@ -99,24 +101,29 @@ def node_risks(
     if risk == "impurity" or (
         risk == "squared_error" and estimator.criterion in ("squared_error", "friedman_mse")
     ):
-        return weight * tree.impurity / total
-    if risk == "error":
+        r = weight * tree.impurity / total
+    elif risk == "error":
         class_weight = tree.value[:, 0, :] * weight[:, None]
-        return (weight - class_weight.max(axis=1)) / total
-    if X is None or y is None:
-        raise parameter_error(
-            "X",
-            "node_risks",
-            "the training rows when a tree grown with "
-            f"criterion={estimator.criterion!r} is pruned by squared error",
-            X,
-        )
-    membership = estimator.decision_path(X).tocsc().T
-    sw = np.ones(len(y)) if sample_weight is None else np.asarray(sample_weight, float)
-    y = np.asarray(y, float)
-    w, s1, s2 = (membership @ v for v in (sw, sw * y, sw * y * y))
-    pred = tree.value[:, 0, 0]
-    return (s2 - 2 * pred * s1 + pred * pred * w) / w[0]
+        r = (weight - class_weight.max(axis=1)) / total
+    else:
+        if X is None or y is None:
+            raise parameter_error(
+                "X",
+                "node_risks",
+                "the training rows when a tree grown with "
+                f"criterion={estimator.criterion!r} is pruned by squared error",
+                X,
+            )
+        membership = estimator.decision_path(X).tocsc().T
+        sw = np.ones(len(y)) if sample_weight is None else np.asarray(sample_weight, float)
+        y = np.asarray(y, float)
+        w, s1, s2 = (membership @ v for v in (sw, sw * y, sw * y * y))
+        pred = tree.value[:, 0, 0]
+        r = (s2 - 2 * pred * s1 + pred * pred * w) / w[0]
+    # a pure node's impurity can come out as 1e-16 instead of 0 (weighted sums); such
+    # rounding is no risk, or its split would get a meaningless tiny alpha
+    r = np.where(r <= _RISK_RTOL * abs(r[0]), 0.0, r)
+    return r
 
 
 def cart_candidates(alphas: np.ndarray) -> np.ndarray:

@@ -264,3 +264,53 @@ def test_large_tree_path_is_fast():
     path = pruning_path(tree, "error")
     path.losses(X[:5000], y[:5000], cart_candidates(path.alphas))
     assert time.perf_counter() - start < 3.0
+
+
+def test_unseen_validation_labels_count_as_errors_at_every_alpha():
+    X, y, tree = _tie_case()
+    path = pruning_path(tree, "error")
+    X_new = np.array([[0.0], [15.0], [3.0]])
+    y_new = np.array([2, 2, 0])  # class 2 never seen in training
+    losses = path.losses(X_new, y_new, cart_candidates(path.alphas))
+    assert np.all(losses >= 2)
+    np.testing.assert_array_equal(
+        losses,
+        [2 + int(path.prune(a).predict([[3.0]])[0] != 0) for a in cart_candidates(path.alphas)],
+    )
+
+
+def test_sample_weights_follow_sklearn():
+    # scikit-learn as reference library: weighted node risks and refits
+    rng = np.random.default_rng(8)
+    X = rng.integers(0, 6, size=(150, 3)).astype(float)
+    y = (X[:, 0] + rng.integers(0, 3, 150)) % 3
+    w = rng.uniform(0.2, 3.0, 150)
+    tree = DecisionTreeClassifier(random_state=0).fit(X, y, sample_weight=w)
+    path = pruning_path(tree, "impurity")
+    theirs = merge_close(tree.cost_complexity_pruning_path(X, y, sample_weight=w).ccp_alphas)
+    theirs = np.unique(np.where(theirs <= 1e-12 * path.node_risk[0], 0.0, theirs))
+    np.testing.assert_allclose(path.alphas, theirs, rtol=1e-9, atol=1e-15)
+    for alpha in cart_candidates(path.alphas)[1:-1]:
+        reference = DecisionTreeClassifier(random_state=0, ccp_alpha=alpha).fit(
+            X, y, sample_weight=w
+        )
+        np.testing.assert_array_equal(path.prune(alpha).predict(X), reference.predict(X))
+
+
+def test_missing_values_are_routed_as_the_full_tree_routes_them():
+    # scikit-learn's trees send NaN down a learned side; pruned trees keep that
+    rng = np.random.default_rng(9)
+    X = rng.normal(size=(300, 3))
+    y = X[:, 0] * 2 + rng.normal(size=300)
+    X[rng.uniform(size=X.shape) < 0.15] = np.nan
+    tree = DecisionTreeRegressor(min_samples_leaf=5, random_state=0).fit(X, y)
+    path = pruning_path(tree, "squared_error")
+    candidates = cart_candidates(path.alphas)
+    candidates[-1] *= 1 + 1e-9
+    losses = path.losses(X, y, candidates)
+    for j, alpha in enumerate(candidates[1:], start=1):
+        reference = DecisionTreeRegressor(min_samples_leaf=5, random_state=0, ccp_alpha=alpha).fit(
+            X, y
+        )
+        np.testing.assert_allclose(path.prune(alpha).predict(X), reference.predict(X))
+        assert losses[j] == pytest.approx(np.sum((reference.predict(X) - y) ** 2), rel=1e-9)
