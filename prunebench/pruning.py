@@ -333,6 +333,28 @@ class PruningPath:
             target[nodes[up]] = target[par[up]]
         return target
 
+    def predict_proba(self, X, alpha: float) -> np.ndarray:
+        """Class probabilities of the optimal subtree at ``alpha``, without rebuilding it.
+
+        One ``apply`` of the full tree, then each row's leaf is mapped to its leaf in
+        ``T(alpha)``, whose training class fractions are returned (classifiers only).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+        alpha : float
+
+        Returns
+        -------
+        ndarray of shape (n_samples, n_classes)
+        """
+        if not is_classifier(self.estimator):
+            raise parameter_error(
+                "estimator", "PruningPath.predict_proba", "a classifier", self.estimator
+            )
+        leaves = self.estimator.apply(X)
+        return self.estimator.tree_.value[self.leaf_map(alpha)[leaves], 0, :]
+
     def prune(self, alpha: float) -> BaseDecisionTree:
         """A copy of the full tree pruned to the optimal subtree at ``alpha``.
 

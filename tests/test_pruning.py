@@ -314,3 +314,11 @@ def test_missing_values_are_routed_as_the_full_tree_routes_them():
         )
         np.testing.assert_allclose(path.prune(alpha).predict(X), reference.predict(X))
         assert losses[j] == pytest.approx(np.sum((reference.predict(X) - y) ** 2), rel=1e-9)
+
+
+def test_subtree_probabilities_without_rebuilding():
+    X, y = make_classification(300, 5, n_informative=3, n_classes=3, random_state=2)
+    tree = DecisionTreeClassifier(random_state=0).fit(X, y)
+    path = pruning_path(tree, "error")
+    for alpha in cart_candidates(path.alphas):
+        np.testing.assert_allclose(path.predict_proba(X, alpha), path.prune(alpha).predict_proba(X))
