@@ -7,10 +7,10 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 
 import pytest
 from click.testing import CliRunner
+from helpers import start_and_wait, stored_rows
 
 import prunebench.execute as execute
 from prunebench.cli import main
@@ -34,24 +34,6 @@ rule = ["min", "1se"]
 """
 
 
-def rows(path):
-    """Every stored result, without timings, sorted: what two runs must share."""
-    conn = sqlite3.connect(path)
-    folds = conn.execute(
-        'SELECT trial_id, "repeat", fold, arm, n_train, n_test, test_fingerprint, error, '
-        "accuracy, balanced_accuracy, log_loss, brier, n_leaves, depth, alpha FROM folds "
-        'ORDER BY trial_id, "repeat", fold, arm'
-    ).fetchall()
-    curves = conn.execute('SELECT * FROM curves ORDER BY group_id, "repeat", fold, candidate')
-    trials = conn.execute(
-        "SELECT trial_id, group_id, criterion, max_depth, min_samples_leaf, inner_folds, rule, "
-        "prune_risk, status FROM trials ORDER BY trial_id"
-    )
-    out = {"folds": folds, "curves": curves.fetchall(), "trials": trials.fetchall()}
-    conn.close()
-    return out
-
-
 @pytest.fixture(scope="module")
 def sweep_file(tmp_path_factory):
     path = tmp_path_factory.mktemp("sweep") / "sweep.toml"
@@ -64,30 +46,16 @@ def reference(sweep_file, tmp_path_factory):
     db = tmp_path_factory.mktemp("ref") / "ref.sqlite"
     summary = conduct(load_study(sweep_file), db, progress=Progress(0, io.StringIO()))
     assert summary.failed == 0 and summary.done == 64
-    return rows(db)
+    return stored_rows(db)
 
 
 def test_resume_after_kill_9_gives_the_uninterrupted_rows(sweep_file, reference, tmp_path):
     db = tmp_path / "killed.sqlite"
     cmd = [sys.executable, "-m", "prunebench.cli", "conduct", str(sweep_file), "--db", str(db)]
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    deadline = time.monotonic() + 120
-    done = 0
-    while time.monotonic() < deadline and proc.poll() is None:
-        time.sleep(0.2)
-        if db.exists():
-            try:
-                conn = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
-                done = conn.execute("SELECT COUNT(*) FROM trials WHERE status='done'").fetchone()[0]
-                conn.close()
-            except sqlite3.DatabaseError:
-                continue
-            if done >= 6:
-                break
-    assert proc.poll() is None, "the sweep finished before it could be killed"
+    proc = start_and_wait(cmd, db, at_least=6)
     proc.send_signal(signal.SIGKILL)
     proc.wait()
-    partial = rows(db)
+    partial = stored_rows(db)
     assert 0 < len({r[0] for r in partial["folds"]}) < 64
     # only whole groups: every trial with rows is done, and has all its rows
     done_ids = {r[0] for r in partial["trials"] if r[-1] == "done"}
@@ -97,7 +65,7 @@ def test_resume_after_kill_9_gives_the_uninterrupted_rows(sweep_file, reference,
     result = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
     assert result.returncode == 0, result.stderr
     assert "already finished" in result.stdout
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
     conn = sqlite3.connect(db)
     assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     assert (
@@ -113,7 +81,7 @@ def test_two_workers_give_identical_rows(sweep_file, reference, tmp_path):
     db = tmp_path / "two.sqlite"
     summary = conduct(load_study(sweep_file), db, workers=2, progress=Progress(0, io.StringIO()))
     assert summary.done == 64
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 def test_a_failing_trial_is_stored_and_the_rest_complete(sweep_file, tmp_path, monkeypatch):

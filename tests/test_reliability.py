@@ -15,6 +15,7 @@ import time
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers import done_trials, stored_rows
 
 from prunebench.cli import main
 from prunebench.execute import Progress, conduct
@@ -37,23 +38,6 @@ rule = ["min", "1se"]
 N_TRIALS = 2 * 2 * 4 * 2
 
 
-def rows(path):
-    """Stored results without timings, sorted."""
-    conn = sqlite3.connect(path)
-    out = {
-        "folds": conn.execute(
-            'SELECT trial_id, "repeat", fold, arm, test_fingerprint, error, log_loss, brier, '
-            'n_leaves, depth, alpha FROM folds ORDER BY trial_id, "repeat", fold, arm'
-        ).fetchall(),
-        "curves": conn.execute(
-            'SELECT * FROM curves ORDER BY group_id, "repeat", fold, candidate'
-        ).fetchall(),
-        "trials": conn.execute("SELECT trial_id, status FROM trials ORDER BY trial_id").fetchall(),
-    }
-    conn.close()
-    return out
-
-
 def quiet():
     return Progress(0, io.StringIO())
 
@@ -65,19 +49,7 @@ def sweep(tmp_path_factory):
     path.write_text(SWEEP)
     reference = folder / "reference.sqlite"
     assert conduct(load_study(path), reference, progress=quiet()).done == N_TRIALS
-    return path, rows(reference)
-
-
-def _done(db) -> int:
-    if not db.exists():
-        return -1
-    try:
-        conn = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
-        n = conn.execute("SELECT COUNT(*) FROM trials WHERE status = 'done'").fetchone()[0]
-        conn.close()
-        return n
-    except sqlite3.DatabaseError:
-        return -1
+    return path, stored_rows(reference)
 
 
 def test_kill_9_at_many_moments_then_resume(sweep, tmp_path):
@@ -100,29 +72,29 @@ def test_kill_9_at_many_moments_then_resume(sweep, tmp_path):
                 time.sleep(0.02)
         else:
             # once the sweep is under way, wait a different while each time
-            while _done(db) < 0 and proc.poll() is None and time.monotonic() < deadline:
+            while done_trials(db) < 0 and proc.poll() is None and time.monotonic() < deadline:
                 time.sleep(0.02)
             time.sleep(0.05 * moment)
         if proc.poll() is None:
-            before = _done(db)
+            before = done_trials(db)
             proc.send_signal(signal.SIGKILL)
             proc.wait()
             kills += 1
             if during_write:
                 # the group being written when the kill came is not there at all
-                assert _done(db) == before
-        if _done(db) < 0:
+                assert done_trials(db) == before
+        if done_trials(db) < 0:
             continue  # killed before the schema was written: nothing to check yet
         conn = sqlite3.connect(db)
         assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
-        partial = rows(db)
-        done = {t for t, status in partial["trials"] if status == "done"}
+        partial = stored_rows(db)
+        done = {t[0] for t in partial["trials"] if t[-1] == "done"}
         assert {r[0] for r in partial["folds"]} == done  # only whole groups
         conn.close()
     assert kills >= 10
     result = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
     assert result.returncode == 0, result.stderr
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 @pytest.fixture(scope="module")
@@ -142,7 +114,7 @@ def test_dask_local_cluster_gives_the_local_rows(sweep, tmp_path, local_cluster)
     db = tmp_path / "dask.sqlite"
     summary = conduct(load_study(study), db, cluster=local_cluster, progress=quiet())
     assert summary.done == N_TRIALS
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 def test_a_dask_worker_killed_mid_task_changes_nothing(sweep, tmp_path, local_cluster):
@@ -160,7 +132,7 @@ def test_a_dask_worker_killed_mid_task_changes_nothing(sweep, tmp_path, local_cl
         load_study(study), db, cluster=local_cluster, progress=quiet(), on_group=kill_once
     )
     assert killed and summary.done == N_TRIALS and summary.failed == 0
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 def test_cluster_address_that_does_not_answer(sweep, tmp_path):
@@ -193,7 +165,7 @@ def _half_done(study, db):
 
     with pytest.raises(Stop):
         conduct(load_study(study), db, progress=quiet(), on_group=stop_after)
-    return rows(db)
+    return stored_rows(db)
 
 
 def test_full_database_gives_a_clear_message_and_loses_nothing(sweep, tmp_path, monkeypatch):
@@ -210,12 +182,12 @@ def test_full_database_gives_a_clear_message_and_loses_nothing(sweep, tmp_path, 
     monkeypatch.setattr(ResultStore, "_prepare", capped)
     with pytest.raises(StoreError, match="full.*intact"):
         conduct(load_study(study), db, progress=quiet())
-    after = rows(db)
+    after = stored_rows(db)
     assert set(before["folds"]) <= set(after["folds"])
     assert sqlite3.connect(db).execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     monkeypatch.setattr(ResultStore, "_prepare", original)
     conduct(load_study(study), db, progress=quiet())
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 def test_database_locked_by_another_writer(sweep, tmp_path, monkeypatch):
@@ -231,9 +203,9 @@ def test_database_locked_by_another_writer(sweep, tmp_path, monkeypatch):
     finally:
         other.execute("ROLLBACK")
         other.close()
-    assert rows(db)["folds"] == before["folds"]
+    assert stored_rows(db)["folds"] == before["folds"]
     conduct(load_study(study), db, progress=quiet())
-    assert rows(db) == reference
+    assert stored_rows(db) == reference
 
 
 def _make_read_only(paths):
@@ -270,7 +242,7 @@ def test_read_only_database(sweep, tmp_path):
     assert result.output.startswith("error: ") and result.output.count("\n") == 1, result.output
     assert "cannot be written" in result.output or "read-only" in result.output
     assert db.read_bytes() == digest
-    assert rows(db)["folds"] == before["folds"]
+    assert stored_rows(db)["folds"] == before["folds"]
 
 
 def test_damaged_and_newer_databases_are_refused_untouched(sweep, tmp_path):

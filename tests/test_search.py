@@ -9,12 +9,12 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 
 import numpy as np
 import optuna
 import pytest
 from click.testing import CliRunner
+from helpers import start_and_wait
 
 from prunebench.cli import main
 from prunebench.execute import Progress, conduct
@@ -127,20 +127,7 @@ def test_search_resumes_after_kill_9_without_repeating_configurations(tmp_path):
     path = _study(tmp_path, configurations=14)
     db = tmp_path / "search.sqlite"
     cmd = [sys.executable, "-m", "prunebench.cli", "conduct", str(path)]
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    deadline = time.monotonic() + 120
-    done = 0
-    while time.monotonic() < deadline and proc.poll() is None:
-        time.sleep(0.1)
-        try:
-            conn = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
-            done = conn.execute("SELECT COUNT(*) FROM trials WHERE status = 'done'").fetchone()[0]
-            conn.close()
-        except sqlite3.DatabaseError:
-            continue
-        if done >= 7:
-            break
-    assert proc.poll() is None, "the search finished before it could be killed"
+    proc = start_and_wait(cmd, db, at_least=7)
     proc.send_signal(signal.SIGKILL)
     proc.wait()
     conn = sqlite3.connect(db)
