@@ -148,29 +148,6 @@ def datasets(as_json, manifests) -> None:
         )
 
 
-def _calibrate(study) -> dict[str, float]:
-    """Seconds for one unlimited-depth tree fit on each data set's outer-training size."""
-    import time
-
-    import numpy as np
-    from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
-
-    out = {}
-    for key, data in study.datasets.items():
-        task = study.task_of(key)
-        model = DecisionTreeClassifier if task == "classification" else DecisionTreeRegressor
-        criterion = study.factors[task]["criterion"][0]
-        n = int(len(data.y) * (study.folds - 1) / study.folds)
-        rows = np.random.default_rng(0).permutation(len(data.y))[:n]
-        best = float("inf")
-        for _ in range(3):
-            t0 = time.perf_counter()
-            model(criterion=criterion, random_state=0).fit(data.X[rows], data.y[rows])
-            best = min(best, time.perf_counter() - t0)
-        out[key] = best
-    return out
-
-
 @main.command()
 @click.argument("study_file", type=click.Path(dir_okay=False))
 @click.option("--workers", default=1, show_default=True, help="Workers to estimate the time for.")
@@ -181,7 +158,7 @@ def check(study_file, workers) -> None:
     Nothing is written. The estimate times one tree fit per data set and scales it
     by the number of fits; trees with a depth limit or larger leaves fit faster.
     """
-    from .execute import default_database
+    from .execute import default_database, plan
     from .study import load_study
 
     study = load_study(study_file)
@@ -202,7 +179,7 @@ def check(study_file, workers) -> None:
         )
         return
     groups = study.groups()
-    per_fit = _calibrate(study)
+    rows = plan(study)
     click.echo(f"study {study.name!r}: {study.description}".rstrip(": "))
     click.echo(
         f"seed {study.seed}, outer CV {study.repeats} repeats x {study.folds} folds, "
@@ -212,17 +189,13 @@ def check(study_file, workers) -> None:
         f"{'dataset':<28} {'task':<11} {'rows':>7} {'features':>8} {'trials':>6} "
         f"{'tree fits':>9} {'est. s':>8}"
     )
-    total_fits, total_seconds = 0, 0.0
-    for key, data in study.datasets.items():
-        mine = [g for g in groups if g.dataset == key]
-        fits = sum(study.repeats * study.folds * (1 + g.inner_folds) for g in mine)
-        seconds = fits * per_fit[key]
-        total_fits += fits
-        total_seconds += seconds
+    for r in rows:
         click.echo(
-            f"{key:<28} {data.task:<11} {len(data.y):>7} {data.X.shape[1]:>8} "
-            f"{sum(len(g.trials) for g in mine):>6} {fits:>9} {seconds:>8.1f}"
+            f"{r['dataset']:<28} {r['task']:<11} {r['rows']:>7} {r['features']:>8} "
+            f"{r['trials']:>6} {r['fits']:>9} {r['seconds']:>8.1f}"
         )
+    total_fits = sum(r["fits"] for r in rows)
+    total_seconds = sum(r["seconds"] for r in rows)
     for task, levels in study.factors.items():
         click.echo(f"factors ({task}): " + "; ".join(f"{k} {v}" for k, v in levels.items()))
     click.echo(

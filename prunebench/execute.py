@@ -24,7 +24,7 @@ from .exceptions import PrunebenchError
 from .store import ResultStore, utc_now
 from .study import Study, TrialGroup
 
-__all__ = ["ConductSummary", "GroupRunner", "Progress", "conduct", "default_database"]
+__all__ = ["ConductSummary", "GroupRunner", "Progress", "conduct", "default_database", "plan"]
 
 
 class ConductError(PrunebenchError):
@@ -173,6 +173,56 @@ def _run_task(task: _Task) -> _Outcome:
         return _Outcome(
             task.group, None, traceback.format_exc(), started, utc_now(), time.perf_counter() - t0
         )
+
+
+def plan(study: Study) -> list[dict]:
+    """Per data set: trials, tree fits and a rough time, from one calibration fit each.
+
+    The calibration grows one unlimited-depth tree with the study's first criterion on
+    an outer-training share of the rows (best of three); the estimate multiplies it by
+    the fits, so depth-limited or large-leaf levels make it pessimistic.
+
+    Parameters
+    ----------
+    study : Study
+
+    Returns
+    -------
+    list of dict
+        ``dataset``, ``task``, ``rows``, ``features``, ``trials``, ``fits`` (each outer
+        fold grows T_max and one tree per inner fold) and ``seconds``.
+    """
+    import numpy as np
+    from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+
+    groups = study.groups()
+    out = []
+    for key, data in study.datasets.items():
+        task = study.task_of(key)
+        model = DecisionTreeClassifier if task == "classification" else DecisionTreeRegressor
+        n = int(len(data.y) * (study.folds - 1) / study.folds)
+        rows = np.random.default_rng(0).permutation(len(data.y))[:n]
+        per_fit = float("inf")
+        for _ in range(3):
+            t0 = time.perf_counter()
+            model(criterion=study.factors[task]["criterion"][0], random_state=0).fit(
+                data.X[rows], data.y[rows]
+            )
+            per_fit = min(per_fit, time.perf_counter() - t0)
+        mine = [g for g in groups if g.dataset == key]
+        fits = sum(study.repeats * study.folds * (1 + g.inner_folds) for g in mine)
+        out.append(
+            {
+                "dataset": key,
+                "task": data.task,
+                "rows": int(len(data.y)),
+                "features": int(data.X.shape[1]),
+                "trials": sum(len(g.trials) for g in mine),
+                "fits": fits,
+                "seconds": fits * per_fit,
+            }
+        )
+    return out
 
 
 class GroupRunner:

@@ -170,3 +170,16 @@ def test_conduct_cli_prints_a_result_table(tmp_path):
     assert "8 trials done, 0 failed" in result.output
     table = [line for line in result.output.splitlines() if line.startswith("iris")]
     assert len(table) == 2 and {line.split()[1] for line in table} == {"min", "1se"}
+
+
+def test_plan_counts_the_fits_a_conduct_makes(tmp_path):
+    from prunebench.execute import plan
+
+    study_file = tmp_path / "s.toml"
+    study_file.write_text(SWEEP.replace('["digits", "wine"]', '["wine"]').replace("[1, 3]", "[1]"))
+    study = load_study(study_file)
+    rows = plan(study)
+    assert [r["dataset"] for r in rows] == ["wine"] and rows[0]["trials"] == 16
+    summary = conduct(study, tmp_path / "s.sqlite", progress=Progress(0, io.StringIO()))
+    assert rows[0]["fits"] == summary.n_fits == 8 * 2 * 3 * (1 + 3)
+    assert rows[0]["seconds"] > 0
