@@ -74,7 +74,7 @@ def outer_splits(data: LoadedDataset, seed: int, repeats: int, folds: int) -> li
     return out
 
 
-def test_fingerprint(test: np.ndarray) -> str:
+def rows_fingerprint(test: np.ndarray) -> str:
     """Short hash of an outer fold's test rows (sorted row indices)."""
     return hashlib.sha256(np.sort(test).astype(np.int64).tobytes()).hexdigest()[:16]
 
@@ -212,7 +212,7 @@ def evaluate_group(
             "fold": fold,
             "n_train": int(train.size),
             "n_test": int(test.size),
-            "test_fingerprint": test_fingerprint(test),
+            "test_fingerprint": rows_fingerprint(test),
         }
         scores_full = (
             _classification_scores(full, X_test, y_test, classes)
