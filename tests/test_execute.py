@@ -183,3 +183,18 @@ def test_plan_counts_the_fits_a_conduct_makes(tmp_path):
     summary = conduct(study, tmp_path / "s.sqlite", progress=Progress(0, io.StringIO()))
     assert rows[0]["fits"] == summary.n_fits == 8 * 2 * 3 * (1 + 3)
     assert rows[0]["seconds"] > 0
+
+
+def test_rows_equal_those_written_by_the_previous_release(tmp_path):
+    # tests/fixtures/previous_release.sqlite was conducted by prunebench 0.1.0 from the study
+    # file beside it; every later version must store the same numbers for the same study
+    import shutil
+    from pathlib import Path
+
+    fixtures = Path(__file__).with_name("fixtures")
+    shutil.copy(fixtures / "previous_release.toml", tmp_path / "study.toml")
+    db = tmp_path / "now.sqlite"
+    summary = conduct(load_study(tmp_path / "study.toml"), db, progress=Progress(0, io.StringIO()))
+    assert summary.done == 80 and summary.failed == 0
+    old = shutil.copy(fixtures / "previous_release.sqlite", tmp_path / "old.sqlite")
+    assert stored_rows(db) == stored_rows(old)
