@@ -96,6 +96,13 @@ class LoadedDataset:
             return None
         return int(np.unique(self.y, return_counts=True)[1].min())
 
+    @property
+    def minority_share(self) -> float | None:
+        """The smallest class's share of the rows, or None for regression."""
+        if self.task == "regression":
+            return None
+        return self.smallest_class / len(self.y)
+
 
 _REGISTRY: dict[str, Dataset] = {}
 
@@ -205,6 +212,8 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
     y = np.asarray(y)
     if info.task == "regression":
         y = y.astype(np.float64)
+    if info.expected:
+        _check_expected(info, X, y)
     X.flags.writeable = False
     y.flags.writeable = False
     return LoadedDataset(
@@ -216,6 +225,22 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
         fingerprint=fingerprint(X, y),
         info=info,
     )
+
+
+def _check_expected(info: Dataset, X: np.ndarray, y: np.ndarray) -> None:
+    # a damaged or replaced file must not pass as the published data
+    where = info.file or info.name
+    found = {"rows": int(X.shape[0]), "features": int(X.shape[1])}
+    if info.task != "regression":
+        labels, counts = np.unique(y, return_counts=True)
+        found["classes"] = int(labels.size)
+        found["class_counts"] = {str(k): int(c) for k, c in zip(labels.tolist(), counts)}
+    for key, value in info.expected.items():
+        if key in found and found[key] != value:
+            raise DatasetError(
+                f"{where}: dataset {info.name!r} has {key} {found[key]} where its manifest "
+                f"expects {value}; the file is not the one the manifest describes"
+            )
 
 
 def _sklearn_loader(function_name: str):
