@@ -151,7 +151,7 @@ def test_vendored_files_match_manifest_and_published_counts(name):
 def test_rare_outcome_sets_have_their_published_class_counts(name):
     data = load_dataset(name)
     labels, counts = np.unique(data.y, return_counts=True)
-    counted = dict(zip(labels.tolist(), counts.tolist()))
+    counted = dict(zip(labels.tolist(), counts.tolist(), strict=True))
     assert counted == get_dataset(name).expected["class_counts"]
     assert round(counted["negative"] / counted["positive"], 2) == KEEL_IMBALANCE_RATIO[name]
     if name in UCI_POSITIVES:

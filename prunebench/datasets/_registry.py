@@ -234,7 +234,9 @@ def _check_expected(info: Dataset, X: np.ndarray, y: np.ndarray) -> None:
     if info.task != "regression":
         labels, counts = np.unique(y, return_counts=True)
         found["classes"] = int(labels.size)
-        found["class_counts"] = {str(k): int(c) for k, c in zip(labels.tolist(), counts)}
+        found["class_counts"] = {
+            str(k): int(c) for k, c in zip(labels.tolist(), counts, strict=True)
+        }
     for key, value in info.expected.items():
         if key in found and found[key] != value:
             raise DatasetError(
