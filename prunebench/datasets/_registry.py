@@ -43,6 +43,9 @@ class Dataset:
         Published counts (``rows``, ``features``, ``classes``) a vendored file must match.
     kind : str
         ``"bundled"`` (ships with scikit-learn), ``"vendored"``, ``"simulated"`` or ``"file"``.
+    check : callable or None
+        ``check(name, params)`` raises :class:`DatasetError` on a bad loader parameter
+        (simulations: sizes, seeds and the model's own parameters).
     """
 
     name: str
@@ -56,6 +59,7 @@ class Dataset:
     target: str | None = None
     expected: dict = field(default_factory=dict)
     kind: str = "file"
+    check: Callable[[str, dict], None] | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -205,6 +209,8 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
             + (f"; it takes {sorted(info.params)}" if info.params else "")
         )
     params = {**info.params, **dict(items)}
+    if info.check is not None:
+        info.check(name, params)
     X, y = info.loader(**params)
     if len(y) == 0:
         raise DatasetError(f"dataset {name!r} has no rows")
