@@ -216,3 +216,63 @@ def test_fingerprints_are_stable_across_processes():
         load_dataset("german").fingerprint,
         load_dataset("led", seed=3).fingerprint,
     ]
+
+
+# ---- descriptions --------------------------------------------------------------------
+
+
+def test_describe_datasets_gives_counts_and_minority_share_of_the_loaded_data():
+    from prunebench.datasets import describe_datasets
+
+    rows = {r["name"]: r for r in describe_datasets(names=["iris", "yeast4", "diabetes"])}
+    assert list(rows) == ["diabetes", "iris", "yeast4"]
+    # iris: 3 classes of 50 rows (scikit-learn's description)
+    assert rows["iris"]["minority_share"] == pytest.approx(1 / 3)
+    # yeast4: 51 positives of 1,484 rows (KEEL's table, from memory)
+    assert rows["yeast4"]["minority_share"] == pytest.approx(51 / 1484)
+    assert (rows["yeast4"]["rows"], rows["yeast4"]["features"]) == (1484, 8)
+    assert rows["diabetes"]["minority_share"] is None and rows["diabetes"]["classes"] is None
+    assert rows["iris"]["fingerprint"] == load_dataset("iris").fingerprint
+    everything = describe_datasets()
+    assert [r["name"] for r in everything] == [d.name for d in list_datasets()]
+    with pytest.raises(DatasetError, match="unknown dataset 'nope'"):
+        describe_datasets(names=["nope"])
+
+
+def test_datasets_command_lists_minority_share_in_table_and_json():
+    import json
+
+    from click.testing import CliRunner
+
+    from prunebench.cli import main
+
+    result = CliRunner().invoke(main, ["datasets", "--json"])
+    assert result.exit_code == 0
+    rows = {r["name"]: r for r in json.loads(result.output)}
+    assert rows["abalone19"]["minority_share"] == pytest.approx(32 / 4174)
+    assert rows["randhie"]["minority_share"] is None
+    table = CliRunner().invoke(main, ["datasets"]).output.splitlines()
+    assert "minor." in table[0].split()
+    line = next(t for t in table if t.startswith("abalone19 "))
+    assert line.split()[6] == "0.008"  # 32 / 4174 = 0.0077
+    help_text = CliRunner().invoke(main, ["datasets", "--help"]).output
+    assert "minority share" in help_text
+
+
+def test_a_file_that_does_not_match_its_expected_counts_is_refused(tmp_path):
+    from pathlib import Path
+
+    from prunebench.datasets import register_manifest
+
+    # a copy of pima with one positive too few expected (UCI: 500 negative, 268 positive)
+    (tmp_path / "pima.csv.gz").write_bytes(Path(get_dataset("pima").file).read_bytes())
+    manifest = tmp_path / "m.toml"
+    manifest.write_text(
+        '[[dataset]]\nname = "pima_copy"\nfile = "pima.csv.gz"\ntarget = "class"\n'
+        'task = "binary"\nexpected = { rows = 768, features = 8, classes = 2, '
+        "class_counts = { tested_negative = 500, tested_positive = 267 } }\n"
+    )
+    register_manifest(manifest)
+    with pytest.raises(DatasetError) as err:
+        load_dataset("pima_copy")
+    assert "pima.csv.gz: dataset 'pima_copy' has class_counts" in str(err.value)
