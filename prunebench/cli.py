@@ -108,43 +108,31 @@ def demo(dataset, criterion, prune_risk, cv, rule, random_state) -> None:
 )
 @_reports_errors
 def datasets(as_json, manifests) -> None:
-    """List every data set a study can name, with task, rows, features, classes and source.
+    """List every data set a study can name: task, rows, features, classes, minority share, source.
+
+    The minority share is the smallest class's share of the rows (blank for regression).
 
     Simulated sets are shown at their default size (a study can set n_samples and seed).
     """
     import json
 
-    from .datasets import list_datasets, load_dataset, register_manifest
+    from .datasets import describe_datasets
 
-    for manifest in manifests:
-        register_manifest(manifest)
-    rows = []
-    for info in list_datasets():
-        data = load_dataset(info.name)
-        rows.append(
-            {
-                "name": info.name,
-                "kind": info.kind,
-                "task": info.task,
-                "rows": int(data.X.shape[0]),
-                "features": int(data.X.shape[1]),
-                "classes": data.n_classes,
-                "source": info.source,
-                "licence": info.licence,
-                "citation": info.citation,
-                "params": data.params,
-            }
-        )
+    rows = describe_datasets(manifests)
     if as_json:
         click.echo(json.dumps(rows, indent=2))
         return
-    click.echo(f"{'name':<14} {'kind':<9} {'task':<10} {'rows':>6} {'feat.':>5} {'cls':>3}  source")
+    click.echo(
+        f"{'name':<19} {'kind':<9} {'task':<10} {'rows':>6} {'feat.':>5} {'cls':>3} "
+        f"{'minor.':>6}  source"
+    )
     for r in rows:
         source = r["source"] if len(r["source"]) <= 46 else r["source"][:45] + "…"
         classes = "" if r["classes"] is None else r["classes"]
+        share = "" if r["minority_share"] is None else f"{r['minority_share']:.3f}"
         click.echo(
-            f"{r['name']:<14} {r['kind']:<9} {r['task']:<10} {r['rows']:>6} {r['features']:>5} "
-            f"{classes:>3}  {source}"
+            f"{r['name']:<19} {r['kind']:<9} {r['task']:<10} {r['rows']:>6} {r['features']:>5} "
+            f"{classes:>3} {share:>6}  {source}"
         )
 
 

@@ -126,3 +126,118 @@ def test_simulations_are_reproducible_and_sized_by_parameters():
     b = load_dataset("waveform", n_samples=300, seed=1)
     c = load_dataset("waveform", n_samples=300, seed=2)
     assert a.X.shape == (300, 21) and a.fingerprint == b.fingerprint != c.fingerprint
+
+
+# ---- the rare-outcome logistic problem -----------------------------------------------
+
+
+def test_rare_logistic_bayes_auc_matches_a_double_integral_and_a_million_rows():
+    from scipy.integrate import dblquad, quad
+    from scipy.special import expit
+    from sklearn.metrics import roc_auc_score
+
+    signal, rate = 2.0, 0.05
+    b0 = simulated.rare_logistic_intercept(signal, rate)
+    # the intercept gives the stated positive rate (scipy's adaptive quadrature as the
+    # independent reference)
+    positives = quad(lambda s: norm.pdf(s, scale=signal) * expit(b0 + s), -np.inf, np.inf)[0]
+    assert positives == pytest.approx(rate, abs=1e-9)
+    # AUC = P(s1 > s0) from its definition as a double integral over the joint density
+    # of a positive's and a negative's score (scipy dblquad), against our one-grid value
+    truth = simulated.rare_logistic_bayes_auc(signal, rate)
+
+    def joint(s0, s1):
+        f1 = norm.pdf(s1, scale=signal) * expit(b0 + s1) / rate
+        f0 = norm.pdf(s0, scale=signal) * (1 - expit(b0 + s0)) / (1 - rate)
+        return f1 * f0
+
+    lim = 12 * signal
+    double = dblquad(joint, -lim, lim, lambda s1: -lim, lambda s1: s1, epsabs=1e-10)[0]
+    assert truth == pytest.approx(double, abs=1e-7)
+    # a 10^6-row sample ranked by its true probability (scikit-learn's roc_auc_score as
+    # reference); the standard error of the estimate is about 7e-4 here
+    X, y = simulated.rare_logistic(1_000_000, seed=11)
+    p = expit(b0 + X[:, :5].sum(axis=1) * (signal / np.sqrt(5)))
+    assert y.mean() == pytest.approx(rate, abs=0.001)
+    assert roc_auc_score(y, p) == pytest.approx(truth, abs=0.003)
+    # no feature beyond the informative five carries signal: ranking by one of them is
+    # no better than chance
+    assert roc_auc_score(y, X[:, 7]) == pytest.approx(0.5, abs=0.005)
+
+
+@pytest.mark.parametrize("signal, rate", [(1.0, 0.05), (3.0, 0.02), (2.0, 0.5)])
+def test_rare_logistic_bayes_auc_across_parameters(signal, rate):
+    from sklearn.metrics import roc_auc_score
+
+    X, y = simulated.rare_logistic(400_000, seed=12, signal=signal, positive_rate=rate)
+    truth = simulated.rare_logistic_bayes_auc(signal, rate)
+    # ranking by the score b·x is Bayes-optimal: its sample AUC is the true AUC
+    assert roc_auc_score(y, X[:, :5].sum(axis=1)) == pytest.approx(truth, abs=0.006)
+    assert y.mean() == pytest.approx(rate, abs=4 * np.sqrt(rate * (1 - rate) / len(y)))
+
+
+def test_rare_logistic_is_registered_with_its_parameters():
+    data = load_dataset("rare_logistic")
+    assert data.task == "binary" and data.X.shape == (1000, 10)
+    assert data.params == {
+        "n_samples": 1000,
+        "seed": 0,
+        "d": 10,
+        "informative": 5,
+        "signal": 2.0,
+        "positive_rate": 0.05,
+    }
+    assert 0.03 <= data.minority_share <= 0.07
+    wide = load_dataset("rare_logistic", n_samples=200, seed=3, d=30, informative=2)
+    assert wide.X.shape == (200, 30)
+
+
+# ---- bad simulation parameters (issue 12) --------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "name, params, key",
+    [
+        ("waveform", {"n_samples": -10}, "n_samples"),  # was numpy's "negative dimensions"
+        ("waveform", {"n_samples": 0}, "n_samples"),
+        ("twonorm", {"n_samples": 10.5}, "n_samples"),
+        ("led", {"n_samples": True}, "n_samples"),
+        ("ringnorm", {"seed": -1}, "seed"),
+        ("hastie_10_2", {"seed": "one"}, "seed"),
+        ("threenorm", {"d": 0}, "d"),
+        ("led", {"noise": 1.5}, "noise"),
+        ("led", {"irrelevant": -2}, "irrelevant"),
+        ("friedman2", {"noise": -1.0}, "noise"),
+        ("rare_logistic", {"positive_rate": 0.0}, "positive_rate"),
+        ("rare_logistic", {"positive_rate": 0.7}, "positive_rate"),
+        ("rare_logistic", {"signal": -1.0}, "signal"),
+        ("rare_logistic", {"informative": 12}, "informative"),
+    ],
+)
+def test_bad_simulation_parameters_are_one_line_naming_the_parameter(name, params, key):
+    from prunebench.datasets import DatasetError
+
+    with pytest.raises(DatasetError) as err:
+        load_dataset(name, **params)
+    message = str(err.value)
+    assert "\n" not in message
+    assert f"The {key!r} parameter of dataset {name!r} must be" in message
+    assert f"Got {params[key]!r} instead." in message
+
+
+def test_negative_rows_in_a_study_exit_2_with_one_line(tmp_path):
+    from click.testing import CliRunner
+
+    from prunebench.cli import main
+
+    study = tmp_path / "study.toml"
+    study.write_text(
+        'name = "bad-size"\nseed = 1\ndatasets = [{ name = "waveform", n_samples = -10 }]\n'
+        '[outer]\nrepeats = 1\nfolds = 2\n[factors]\ncriterion = ["gini"]\n'
+    )
+    for command in (["check", str(study)], ["conduct", str(study)]):
+        result = CliRunner().invoke(main, command)
+        assert result.exit_code == 2, result.output
+        lines = result.output.strip().splitlines()
+        assert len(lines) == 1 and "'n_samples'" in lines[0] and "study.toml" in lines[0]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["study.toml"]

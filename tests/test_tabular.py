@@ -177,7 +177,7 @@ def test_a_study_runs_on_team_data(tmp_path):
     study = _study(tmp_path, manifest)
     result = CliRunner().invoke(main, ["conduct", str(study)])
     assert result.exit_code == 0, result.output
-    assert "1 trials done" in result.output
+    assert "1 trial" in result.output and "done" in result.output
 
 
 def test_bad_manifests(tmp_path):
@@ -192,3 +192,124 @@ def test_bad_manifests(tmp_path):
         register_manifest(bad)
     with pytest.raises(DatasetError, match="no such dataset manifest"):
         register_manifest(tmp_path / "absent.toml")
+
+
+# ---- manifest mistakes (issue 12): one line naming the manifest and the key -------------
+
+MANIFEST_MISTAKES = [
+    # before: a LookupError traceback from the codec machinery
+    ("unknown encoding", 'encoding = "utf-9"\n', "key 'encoding' names no known text encoding"),
+    ("encoding not text", 'encoding = "rot13"\n', None),  # rot13 is a str-to-str codec
+    ("encoding not a string", "encoding = 8\n", "key 'encoding' must be the name"),
+    # before: accepted silently
+    ("categorical twice", None, "key 'categorical' names column 'region' twice"),
+    ("target dropped", None, "key 'drop' lists 'defaulted', the target column"),
+    ("drop twice", None, "key 'drop' names column 'customer_id' twice"),
+    ("drop and categorical", None, "'region' is listed under both 'drop' and 'categorical'"),
+    ("drop not a list", None, "key 'drop' must be a list of column names"),
+    ("separator two characters", 'separator = ";;"\n', "key 'separator' must be one character"),
+    ("separator empty", 'separator = ""\n', "key 'separator' must be one character"),
+    ("separator a letter", 'separator = "x"\n', "key 'separator' cannot be 'x'"),
+    ("separator a number", "separator = 1\n", "key 'separator' must be one character"),
+    ("expected not counts", "expected = { rows = -1 }\n", "key 'expected' has rows = -1"),
+]
+
+
+def _mistaken_manifest(tmp_path, label, extra):
+    manifest = _manifest(tmp_path, name="mistake", extra=extra or "")
+    text = manifest.read_text()
+    if label == "categorical twice":
+        text = text.replace('["region", "product"]', '["region", "product", "region"]')
+    elif label == "target dropped":
+        text = text.replace('drop = ["customer_id"]', 'drop = ["customer_id", "defaulted"]')
+    elif label == "drop twice":
+        text = text.replace('drop = ["customer_id"]', 'drop = ["customer_id", "customer_id"]')
+    elif label == "drop and categorical":
+        text = text.replace('drop = ["customer_id"]', 'drop = ["customer_id", "region"]')
+    elif label == "drop not a list":
+        text = text.replace('drop = ["customer_id"]', 'drop = "customer_id"')
+    manifest.write_text(text)
+    return manifest
+
+
+@pytest.mark.parametrize("case", MANIFEST_MISTAKES, ids=[c[0] for c in MANIFEST_MISTAKES])
+def test_manifest_mistakes_are_one_line_naming_manifest_and_key(case, tmp_path):
+    label, extra, phrase = case
+    manifest = _mistaken_manifest(tmp_path, label, extra)
+    with pytest.raises(DatasetError) as err:
+        register_manifest(manifest)
+    message = str(err.value)
+    assert message.startswith(f"{manifest}: [[dataset]] 'mistake': ") and "\n" not in message
+    if phrase:
+        assert phrase in message, message
+    else:
+        assert "key 'encoding'" in message and "not a text encoding" in message
+
+
+@pytest.mark.parametrize("label", ["unknown encoding", "categorical twice", "target dropped"])
+def test_manifest_mistakes_exit_2_from_every_command_with_nothing_written(label, tmp_path):
+    extra = 'encoding = "utf-9"\n' if label == "unknown encoding" else None
+    manifest = _mistaken_manifest(tmp_path, label, extra)
+    study = _study(tmp_path, manifest)
+    before = sorted(p.name for p in tmp_path.iterdir())
+    for command in (
+        ["check", str(study)],
+        ["conduct", str(study)],
+        ["datasets", "--manifest", str(manifest)],
+    ):
+        result = CliRunner().invoke(main, command)
+        assert result.exit_code == 2, (command, result.output)
+        assert result.output.count("\n") == 1 and str(manifest) in result.output
+        assert result.exception is None or isinstance(result.exception, SystemExit)
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+
+
+def test_read_table_refuses_an_unknown_encoding_naming_the_file(tmp_path):
+    (tmp_path / "loans.csv").write_text(LOANS)
+    with pytest.raises(DatasetError, match=r"loans\.csv: the encoding names no known text"):
+        read_table(tmp_path / "loans.csv", "defaulted", "binary", encoding="bogus-8")
+    with pytest.raises(DatasetError, match="key 'categorical' names column 'region' twice"):
+        read_table(tmp_path / "loans.csv", "defaulted", "binary", categorical=["region"] * 2)
+
+
+@pytest.mark.parametrize(
+    "separator, toml, words",
+    [(";", '";"', "semicolons"), ("\t", '"\\t"', "tabs"), ("|", '"|"', "vertical bars")],
+)
+def test_another_separator_is_named_and_the_separator_key_reads_it(
+    separator, toml, words, tmp_path
+):
+    other = LOANS.replace(",", separator)
+    name = "sep_" + words.replace(" ", "_")
+    manifest = _manifest(tmp_path, csv_text=other, name=name)
+    register_manifest(manifest)
+    with pytest.raises(DatasetError) as err:
+        load_dataset(name)
+    message = str(err.value)
+    # before: "column 'defaulted' (the target) is not in the file; it has customer_id;region;…"
+    assert message.startswith(f"{tmp_path / 'loans.csv'}: the header reads as one column")
+    assert f"seems to use {words} as separator: set separator = {toml} in the manifest" in message
+    assert "\n" not in message
+    # the key the message names reads the file exactly as the comma-separated one
+    manifest.write_text(manifest.read_text() + f"separator = {toml}\n")
+    register_manifest(manifest)
+    (tmp_path / "comma.csv").write_text(LOANS)
+    X, y, _ = read_table(
+        tmp_path / "comma.csv",
+        "defaulted",
+        "binary",
+        drop=["customer_id"],
+        categorical=["region", "product"],
+    )
+    data = load_dataset(name)
+    np.testing.assert_array_equal(data.X, X)
+    np.testing.assert_array_equal(data.y, y)
+
+
+def test_a_quoted_field_holding_a_semicolon_is_not_mistaken_for_a_separator(tmp_path):
+    text = LOANS.replace("north", '"north;west"')
+    (tmp_path / "loans.csv").write_text(text)
+    X, _, _ = read_table(
+        tmp_path / "loans.csv", "defaulted", "binary", drop=["customer_id"], categorical="auto"
+    )
+    assert X.shape == (12, 3)

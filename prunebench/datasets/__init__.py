@@ -12,6 +12,7 @@ team's own files, described by a manifest (:mod:`.tabular`) and registered with
 :func:`register_manifest`.
 """
 
+from collections.abc import Iterable
 from pathlib import Path
 
 from . import simulated
@@ -46,6 +47,58 @@ def register_manifest(path: str | Path) -> list[Dataset]:
     return [register(d, replace=True) for d in read_manifest(path)]
 
 
+def describe_datasets(
+    manifests: Iterable[str | Path] = (), names: Iterable[str] | None = None
+) -> list[dict]:
+    """Describe data sets: task, size, class balance, source, licence and parameters.
+
+    Every set is loaded (simulations at their default parameters), so the counts are
+    those of the data a study gets.
+
+    Parameters
+    ----------
+    manifests : iterable of str or Path, default=()
+        Manifests whose data sets to register first (see :func:`register_manifest`).
+    names : iterable of str, optional
+        The data sets to describe; every registered one when None.
+
+    Returns
+    -------
+    list of dict
+        One per data set, sorted by name, with keys ``name``, ``kind``, ``task``,
+        ``rows``, ``features``, ``classes`` (None for regression), ``minority_share``
+        (the smallest class's share of the rows; None for regression), ``source``,
+        ``licence``, ``citation``, ``params`` and ``fingerprint``.
+    """
+    for manifest in manifests:
+        register_manifest(manifest)
+    infos = list_datasets() if names is None else sorted(map(get_dataset, names), key=_name)
+    rows = []
+    for info in infos:
+        data = load_dataset(info.name)
+        rows.append(
+            {
+                "name": info.name,
+                "kind": info.kind,
+                "task": info.task,
+                "rows": int(data.X.shape[0]),
+                "features": int(data.X.shape[1]),
+                "classes": data.n_classes,
+                "minority_share": data.minority_share,
+                "source": info.source,
+                "licence": info.licence,
+                "citation": info.citation,
+                "params": data.params,
+                "fingerprint": data.fingerprint,
+            }
+        )
+    return rows
+
+
+def _name(info: Dataset) -> str:
+    return info.name
+
+
 for _entry in read_manifest(VENDORED_MANIFEST, kind="vendored"):
     register(_entry)
 
@@ -55,6 +108,7 @@ __all__ = [
     "Dataset",
     "DatasetError",
     "LoadedDataset",
+    "describe_datasets",
     "fingerprint",
     "get_dataset",
     "is_classification",

@@ -43,6 +43,9 @@ class Dataset:
         Published counts (``rows``, ``features``, ``classes``) a vendored file must match.
     kind : str
         ``"bundled"`` (ships with scikit-learn), ``"vendored"``, ``"simulated"`` or ``"file"``.
+    check : callable or None
+        ``check(name, params)`` raises :class:`DatasetError` on a bad loader parameter
+        (simulations: sizes, seeds and the model's own parameters).
     """
 
     name: str
@@ -56,6 +59,7 @@ class Dataset:
     target: str | None = None
     expected: dict = field(default_factory=dict)
     kind: str = "file"
+    check: Callable[[str, dict], None] | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -95,6 +99,13 @@ class LoadedDataset:
         if self.task == "regression":
             return None
         return int(np.unique(self.y, return_counts=True)[1].min())
+
+    @property
+    def minority_share(self) -> float | None:
+        """The smallest class's share of the rows, or None for regression."""
+        if self.task == "regression":
+            return None
+        return self.smallest_class / len(self.y)
 
 
 _REGISTRY: dict[str, Dataset] = {}
@@ -198,6 +209,8 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
             + (f"; it takes {sorted(info.params)}" if info.params else "")
         )
     params = {**info.params, **dict(items)}
+    if info.check is not None:
+        info.check(name, params)
     X, y = info.loader(**params)
     if len(y) == 0:
         raise DatasetError(f"dataset {name!r} has no rows")
@@ -205,6 +218,8 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
     y = np.asarray(y)
     if info.task == "regression":
         y = y.astype(np.float64)
+    if info.expected:
+        _check_expected(info, X, y)
     X.flags.writeable = False
     y.flags.writeable = False
     return LoadedDataset(
@@ -216,6 +231,24 @@ def _load_cached(name: str, items: tuple) -> LoadedDataset:
         fingerprint=fingerprint(X, y),
         info=info,
     )
+
+
+def _check_expected(info: Dataset, X: np.ndarray, y: np.ndarray) -> None:
+    # a damaged or replaced file must not pass as the published data
+    where = info.file or info.name
+    found = {"rows": int(X.shape[0]), "features": int(X.shape[1])}
+    if info.task != "regression":
+        labels, counts = np.unique(y, return_counts=True)
+        found["classes"] = int(labels.size)
+        found["class_counts"] = {
+            str(k): int(c) for k, c in zip(labels.tolist(), counts, strict=True)
+        }
+    for key, value in info.expected.items():
+        if key in found and found[key] != value:
+            raise DatasetError(
+                f"{where}: dataset {info.name!r} has {key} {found[key]} where its manifest "
+                f"expects {value}; the file is not the one the manifest describes"
+            )
 
 
 def _sklearn_loader(function_name: str):

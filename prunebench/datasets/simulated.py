@@ -27,21 +27,46 @@ parameters always give the same data.
   remember them; #2 and #3 give a signal-to-noise ratio of about 3:1).
 - ``hastie_10_2`` (ESL 2nd ed., eq. 10.2): ten N(0, 1) features, class 1 where
   the sum of squares exceeds 9.34 (the median of χ²_10), else -1.
+- ``rare_logistic`` (ours): a rare outcome with a known Bayes-optimal ranking.
+  x ~ N(0, I_d); the first ``informative`` features carry equal coefficients with
+  |b| = ``signal``, the rest none; P(y = 1 | x) = sigmoid(b0 + b·x), with b0 set so
+  that the positive rate is ``positive_rate``. The true probability is increasing in
+  the score s = b·x ~ N(0, signal²), so ranking by s is Bayes-optimal, and its AUC,
+  ∫ f1(s) F0(s) ds with f1 the score density of the positives and F0 the score
+  distribution of the negatives, follows from the definition
+  (:func:`rare_logistic_bayes_auc`): 0.893 at the defaults (d = 10, 5 informative,
+  signal 2, 5% positives).
+
+Every parameter is checked before any data is made: ``n_samples`` a positive integer
+of at most 10,000,000 (beyond that the arrays alone outgrow a workstation's memory),
+``seed`` an integer in [0, 2³² − 1] (what numpy and scikit-learn accept), and each
+model's own parameters within their meaning.
 """
 
 from __future__ import annotations
 
+import math
+from functools import lru_cache
+
 import numpy as np
+from scipy.integrate import cumulative_trapezoid, trapezoid
+from scipy.optimize import brentq
+from scipy.special import expit
 from sklearn.datasets import make_friedman1, make_friedman2, make_friedman3, make_hastie_10_2
 
-from ._registry import Dataset, register
+from ..exceptions import parameter_error
+from ._registry import Dataset, DatasetError, register
 
 __all__ = [
     "LED_SEGMENTS",
     "RINGNORM_A",
+    "check_parameters",
     "friedman",
     "hastie_10_2",
     "led",
+    "rare_logistic",
+    "rare_logistic_bayes_auc",
+    "rare_logistic_intercept",
     "ringnorm",
     "threenorm",
     "twonorm",
@@ -146,6 +171,166 @@ def hastie_10_2(n_samples: int = 1000, seed: int = 0) -> tuple[np.ndarray, np.nd
     return X, y.astype(int)
 
 
+def rare_logistic(
+    n_samples: int = 1000,
+    seed: int = 0,
+    d: int = 10,
+    informative: int = 5,
+    signal: float = 2.0,
+    positive_rate: float = 0.05,
+) -> tuple[np.ndarray, np.ndarray]:
+    """A rare outcome from a logistic model with Gaussian features (see the module notes).
+
+    Parameters
+    ----------
+    n_samples, seed : int
+    d : int, default=10
+        Features, all N(0, 1) and independent.
+    informative : int, default=5
+        The first ``informative`` features have coefficient ``signal / sqrt(informative)``;
+        the others none.
+    signal : float, default=2.0
+        The coefficient vector's length |b|, the score's standard deviation.
+    positive_rate : float, default=0.05
+        P(y = 1), reached by the intercept :func:`rare_logistic_intercept`.
+
+    Returns
+    -------
+    X : ndarray of shape (n_samples, d)
+    y : ndarray of shape (n_samples,), 0 or 1
+    """
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(n_samples, d))
+    b0 = rare_logistic_intercept(signal, positive_rate)
+    score = X[:, :informative].sum(axis=1) * (signal / math.sqrt(informative))
+    y = (rng.uniform(size=n_samples) < expit(b0 + score)).astype(int)
+    return X, y
+
+
+# the score s = signal * z with z ~ N(0, 1); the integrands are smooth and vanish
+# beyond |z| = 12, so the trapezoid rule on this grid is exact to about 1e-9
+_Z = np.linspace(-12.0, 12.0, 48_001)
+_PHI = np.exp(-(_Z**2) / 2) / math.sqrt(2 * math.pi)
+
+
+@lru_cache(maxsize=64)
+def rare_logistic_intercept(signal: float = 2.0, positive_rate: float = 0.05) -> float:
+    """The intercept b0 with E[sigmoid(b0 + s)] = positive_rate for s ~ N(0, signal²).
+
+    Parameters
+    ----------
+    signal : float
+    positive_rate : float, in (0, 1)
+
+    Returns
+    -------
+    float
+    """
+
+    def excess(b0: float) -> float:
+        return trapezoid(_PHI * expit(b0 + signal * _Z), _Z) - positive_rate
+
+    return float(brentq(excess, -60.0, 60.0, xtol=1e-13))
+
+
+def rare_logistic_bayes_auc(signal: float = 2.0, positive_rate: float = 0.05) -> float:
+    """The Bayes-optimal ranking's AUC of :func:`rare_logistic`.
+
+    AUC = P(s₁ > s₀) = ∫ f₁(s) F₀(s) ds, with f₁(s) = φ_σ(s) p(s) / π the density of a
+    positive's score, F₀(s) = ∫_{-∞}^s φ_σ(t) (1 − p(t)) dt / (1 − π) the distribution of
+    a negative's, p(s) = sigmoid(b0 + s), σ = ``signal``, π = ``positive_rate``. It does
+    not depend on d or on how the signal is spread over the features.
+
+    Parameters
+    ----------
+    signal : float
+    positive_rate : float
+
+    Returns
+    -------
+    float
+    """
+    p = expit(rare_logistic_intercept(signal, positive_rate) + signal * _Z)
+    f1 = _PHI * p / positive_rate
+    F0 = cumulative_trapezoid(_PHI * (1 - p), _Z, initial=0.0) / (1 - positive_rate)
+    return float(trapezoid(f1 * F0, _Z))
+
+
+# ---- parameter checks --------------------------------------------------------------
+
+_MAX_ROWS = 10_000_000
+_MAX_SEED = 2**32 - 1
+
+
+def _integer(low: int, high: int, words: str):
+    def ok(v: object) -> bool:
+        return isinstance(v, int) and not isinstance(v, bool) and low <= v <= high
+
+    return ok, words
+
+
+def _real(low: float, high: float, words: str, *, open_low: bool = False):
+    def ok(v: object) -> bool:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not math.isfinite(v):
+            return False
+        return (low < v if open_low else low <= v) and v <= high
+
+    return ok, words
+
+
+_COMMON = {
+    "n_samples": _integer(1, _MAX_ROWS, f"a positive integer of at most {_MAX_ROWS:,}"),
+    "seed": _integer(0, _MAX_SEED, "an integer from 0 to 2**32 - 1"),
+    "d": _integer(1, 10_000, "a positive integer (the number of features)"),
+}
+_SPECS = {
+    "led": {
+        "noise": _real(0.0, 1.0, "a probability from 0 to 1"),
+        "irrelevant": _integer(0, 10_000, "a non-negative integer"),
+    },
+    "friedman1": {"noise": _real(0.0, math.inf, "a non-negative number")},
+    "friedman2": {"noise": _real(0.0, math.inf, "a non-negative number")},
+    "friedman3": {"noise": _real(0.0, math.inf, "a non-negative number")},
+    "rare_logistic": {
+        "informative": _integer(1, 10_000, "a positive integer of at most d"),
+        "signal": _real(0.0, 20.0, "a number above 0 and at most 20", open_low=True),
+        "positive_rate": _real(0.0, 0.5, "a share above 0 and at most 0.5", open_low=True),
+    },
+}
+
+
+def check_parameters(name: str, params: dict) -> None:
+    """Refuse a simulation parameter outside its meaning, naming it in one line.
+
+    Parameters
+    ----------
+    name : str
+        The data set.
+    params : dict
+        The loader parameters to be used.
+
+    Raises
+    ------
+    DatasetError
+    """
+    specs = {**_COMMON, **_SPECS.get(name, {})}
+    for key, value in params.items():
+        ok, words = specs[key]
+        if not ok(value):
+            raise DatasetError(str(parameter_error(key, f"dataset {name!r}", words, value)))
+    if name == "rare_logistic" and params["informative"] > params["d"]:
+        raise DatasetError(
+            str(
+                parameter_error(
+                    "informative",
+                    "dataset 'rare_logistic'",
+                    f"at most d = {params['d']}",
+                    params["informative"],
+                )
+            )
+        )
+
+
 _BREIMAN_1984 = (
     "Breiman, L., Friedman, J. H., Olshen, R. A., Stone, C. J. (1984). Classification and "
     "Regression Trees. Wadsworth, §2.6."
@@ -201,6 +386,15 @@ for _name, _task, _loader, _citation, _short, _extra in [
         {"noise": 0.1},
     ),
     ("hastie_10_2", "binary", hastie_10_2, _ESL, "ESL 2nd ed. eq. 10.2", {}),
+    (
+        "rare_logistic",
+        "binary",
+        rare_logistic,
+        "prunebench's own: a logistic model with Gaussian features; Bayes AUC by "
+        "numerical integration of the score distribution (prunebench.datasets.simulated)",
+        "logistic model, 5% positives, Bayes AUC 0.893",
+        {"d": 10, "informative": 5, "signal": 2.0, "positive_rate": 0.05},
+    ),
 ]:
     register(
         Dataset(
@@ -212,5 +406,6 @@ for _name, _task, _loader, _citation, _short, _extra in [
             citation=_citation,
             params={**_SIZE, **_extra},
             kind="simulated",
+            check=check_parameters,
         )
     )

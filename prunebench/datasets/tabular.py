@@ -10,6 +10,7 @@ A manifest names one data set per ``[[dataset]]`` table::
     drop = ["customer_id"]               # columns that are not features
     categorical = ["region", "product"]  # or "auto": every non-numeric column
     encoding = "utf-8"                   # CSV text encoding (default utf-8)
+    separator = ","                      # CSV field separator (default ","; ";" or "\t")
     source = "loan desk extract, 2026-10"
     licence = "internal"
     citation = "Harbour Loans data team"
@@ -20,11 +21,14 @@ route at every split (their built-in missing-value support); categorical columns
 are encoded as integer codes of their labels in sorted order (a tree can then
 split on any cut of that order), a missing label staying NaN.  Every problem
 with a file raises :class:`~prunebench.datasets.DatasetError` naming the file and
-the column.
+the column, and every mistake in a manifest (an unknown key or encoding, a column
+named twice, the target also dropped, a bad separator) one naming the manifest and
+the key.
 """
 
 from __future__ import annotations
 
+import codecs
 import csv
 import gzip
 import io
@@ -36,7 +40,7 @@ import pandas as pd
 
 from ._registry import TASKS, Dataset, DatasetError
 
-__all__ = ["NA_MARKERS", "read_manifest", "read_table"]
+__all__ = ["NA_MARKERS", "encoding_problem", "read_manifest", "read_table", "separator_problem"]
 
 #: cell texts read as missing values
 NA_MARKERS = ["", "NA", "NaN", "nan", "?"]
@@ -48,6 +52,7 @@ _MANIFEST_KEYS = {
     "drop",
     "categorical",
     "encoding",
+    "separator",
     "source",
     "licence",
     "citation",
@@ -60,7 +65,67 @@ def _open_text(path: Path, encoding: str):
     return io.TextIOWrapper(raw, encoding=encoding, newline="")
 
 
-def _read_frame(path: Path, encoding: str) -> pd.DataFrame:
+_SEPARATOR_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs", "|": "vertical bars"}
+_SEPARATOR_TOML = {",": '","', ";": '";"', "\t": '"\\t"', "|": '"|"'}
+
+
+def separator_problem(separator: object) -> str | None:
+    """Why a CSV field separator cannot be used, or None when it can.
+
+    Parameters
+    ----------
+    separator : object
+
+    Returns
+    -------
+    str or None
+    """
+    if not isinstance(separator, str) or len(separator) != 1:
+        return f'must be one character (such as ",", ";" or "\\t"); got {separator!r}'
+    if separator.isalnum() or separator in '"\r\n ':
+        return (
+            f"cannot be {separator!r}: letters, digits, quotes, spaces and line breaks "
+            "occur inside fields"
+        )
+    return None
+
+
+def encoding_problem(encoding: object) -> str | None:
+    """Why a text encoding cannot be used, or None when it can.
+
+    Parameters
+    ----------
+    encoding : object
+
+    Returns
+    -------
+    str or None
+    """
+    if not isinstance(encoding, str):
+        return f"must be the name of a text encoding; got {encoding!r}"
+    try:
+        info = codecs.lookup(encoding)
+    except LookupError:
+        return f'names no known text encoding ({encoding!r}); use e.g. "utf-8" or "latin-1"'
+    if not getattr(info, "_is_text_encoding", True):
+        return f"names a codec that is not a text encoding ({encoding!r})"
+    return None
+
+
+def _check_header(path: Path, header: list[str], separator: str) -> None:
+    # a file with another separator reads as one column whose name holds them all
+    if len(header) != 1:
+        return
+    for other, words in _SEPARATOR_NAMES.items():
+        if other != separator and other in header[0]:
+            raise DatasetError(
+                f"{path}: the header reads as one column {header[0][:60]!r}; the file seems to "
+                f"use {words} as separator: set separator = {_SEPARATOR_TOML[other]} in the "
+                "manifest"
+            )
+
+
+def _read_frame(path: Path, encoding: str, separator: str = ",") -> pd.DataFrame:
     if not path.exists():
         raise DatasetError(f"{path}: no such data file")
     if path.stat().st_size == 0:
@@ -77,15 +142,23 @@ def _read_frame(path: Path, encoding: str) -> pd.DataFrame:
         names = [str(c) for c in frame.columns]
         _check_names(path, names)
         return frame.astype(object).where(frame.notna(), None).astype("string")
+    problem = encoding_problem(encoding)
+    if problem:
+        raise DatasetError(f"{path}: the encoding {problem}")
+    problem = separator_problem(separator)
+    if problem:
+        raise DatasetError(f"{path}: the separator {problem}")
     try:
         with _open_text(path, encoding) as text:
-            header = next(csv.reader(text), None)
+            header = next(csv.reader(text, delimiter=separator), None)
             if header is None or not any(h.strip() for h in header):
                 raise DatasetError(f"{path}: the data file is empty")
+            _check_header(path, header, separator)
             _check_names(path, [h.strip() for h in header])
             text.seek(0)
             frame = pd.read_csv(
                 text,
+                sep=separator,
                 dtype=str,
                 na_values=NA_MARKERS,
                 keep_default_na=False,
@@ -120,6 +193,7 @@ def read_table(
     drop: list[str] | tuple = (),
     categorical: list[str] | tuple | str = (),
     encoding: str = "utf-8",
+    separator: str = ",",
 ) -> tuple[np.ndarray, np.ndarray, list[str]]:
     """Read a CSV or Parquet file into features and target.
 
@@ -136,6 +210,9 @@ def read_table(
         Columns to encode as integer codes of their sorted labels; ``"auto"`` takes
         every column that is not all numeric.
     encoding : str, default="utf-8"
+        The CSV file's text encoding.
+    separator : str, default=","
+        The CSV file's field separator, one character (``";"``, ``"\t"``, ...).
 
     Returns
     -------
@@ -148,7 +225,10 @@ def read_table(
     path = Path(path)
     if task not in TASKS:
         raise DatasetError(f"{path}: task {task!r} is not one of {', '.join(TASKS)}")
-    frame = _read_frame(path, encoding)
+    problem = _columns_problem(target, drop, categorical)
+    if problem:
+        raise DatasetError(f"{path}: {problem}")
+    frame = _read_frame(path, encoding, separator)
     columns = list(frame.columns)
     where = f"{path}: column"
     if target not in columns:
@@ -209,6 +289,28 @@ def read_table(
     return X, y, features
 
 
+def _columns_problem(target: str, drop: object, categorical: object) -> str | None:
+    # the column lists a manifest gives: each a list of names, none twice, the target not dropped
+    for key, names in (("drop", drop), ("categorical", categorical)):
+        if key == "categorical" and names == "auto":
+            continue
+        if not isinstance(names, list | tuple) or not all(isinstance(n, str) for n in names):
+            what = ' or "auto"' if key == "categorical" else ""
+            return f"key {key!r} must be a list of column names{what}; got {names!r}"
+        seen = set()
+        for name in names:
+            if name in seen:
+                return f"key {key!r} names column {name!r} twice"
+            seen.add(name)
+        if key == "drop" and target in seen:
+            return f"key 'drop' lists {target!r}, the target column"
+    if categorical != "auto":
+        both = sorted(set(drop) & set(categorical))
+        if both:
+            return f"column {both[0]!r} is listed under both 'drop' and 'categorical'"
+    return None
+
+
 def _numeric(path: Path, name: str, column: pd.Series) -> np.ndarray:
     values = pd.to_numeric(column, errors="coerce")
     junk = values.isna() & column.notna()
@@ -263,6 +365,23 @@ def read_manifest(path: str | Path, kind: str = "file") -> list[Dataset]:
                 raise DatasetError(f"{label}: key {key!r} is missing or not a string")
         if entry["task"] not in TASKS:
             raise DatasetError(f"{label}: key 'task' must be one of {', '.join(TASKS)}")
+        for key in ("source", "licence", "citation"):
+            if key in entry and not isinstance(entry[key], str):
+                raise DatasetError(f"{label}: key {key!r} must be a string")
+        problem = _columns_problem(
+            entry["target"], entry.get("drop", []), entry.get("categorical", [])
+        )
+        if problem:
+            raise DatasetError(f"{label}: {problem}")
+        problem = encoding_problem(entry.get("encoding", "utf-8"))
+        if problem:
+            raise DatasetError(f"{label}: key 'encoding' {problem}")
+        problem = separator_problem(entry.get("separator", ","))
+        if problem:
+            raise DatasetError(f"{label}: key 'separator' {problem}")
+        problem = _expected_problem(entry.get("expected", {}))
+        if problem:
+            raise DatasetError(f"{label}: key 'expected' {problem}")
         file = (path.parent / entry["file"]).resolve()
         out.append(
             Dataset(
@@ -281,6 +400,24 @@ def read_manifest(path: str | Path, kind: str = "file") -> list[Dataset]:
     return out
 
 
+def _expected_problem(expected: object) -> str | None:
+    counts = ("rows", "features", "classes")
+    if not isinstance(expected, dict):
+        return "must be a table such as { rows = 768, features = 8, classes = 2 }"
+    for key, value in expected.items():
+        if key in counts:
+            if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+                return f"has {key} = {value!r}; counts are positive integers"
+        elif key == "class_counts":
+            if not isinstance(value, dict) or not all(
+                isinstance(v, int) and not isinstance(v, bool) and v >= 1 for v in value.values()
+            ):
+                return "has class_counts that is not a table of class = positive count"
+        else:
+            return f"has {key!r}; it takes {', '.join(counts)} and class_counts"
+    return None
+
+
 def _file_loader(file: Path, entry: dict):
     def load():
         X, y, _ = read_table(
@@ -290,6 +427,7 @@ def _file_loader(file: Path, entry: dict):
             drop=entry.get("drop", ()),
             categorical=entry.get("categorical", ()),
             encoding=entry.get("encoding", "utf-8"),
+            separator=entry.get("separator", ","),
         )
         return X, y
 
