@@ -22,6 +22,7 @@ from pathlib import Path
 
 import sqlite_utils
 
+from ._version import __version__
 from .exceptions import PrunebenchError
 
 __all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "utc_now"]
@@ -317,8 +318,6 @@ class ResultStore:
         ----------
         study : Study
         """
-        from . import __version__
-
         now = utc_now()
         try:
             existing = self.db.conn.execute(
@@ -426,8 +425,6 @@ class ResultStore:
         import numpy
         import pandas
         import sklearn
-
-        from . import __version__
 
         self.db["environments"].insert(
             {
