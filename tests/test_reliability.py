@@ -374,6 +374,55 @@ def test_read_only_database(sweep, tmp_path):
     assert stored_rows(db)["folds"] == before["folds"]
 
 
+def _read_everything(db, study_name):
+    """Every read path: the store, the pandas API, SQL, and the compare and sql commands."""
+    from prunebench.results import open_results, run_query
+
+    with ResultStore(db, readonly=True) as store:
+        assert store.integrity() == "ok"
+        counts = store.query("SELECT status, COUNT(*) AS n FROM trials GROUP BY status")
+    assert counts == [{"status": "done", "n": N_TRIALS}]
+    results = open_results(db)
+    assert len(results.trials()) == N_TRIALS
+    assert len(results.comparison()) == N_TRIALS
+    assert run_query(db, "SELECT COUNT(*) AS n FROM folds").iloc[0, 0] == N_TRIALS * 6 * 2
+    compare = CliRunner().invoke(main, ["compare", "--db", str(db), "--json"])
+    assert compare.exit_code == 0, compare.output
+    sql = CliRunner().invoke(main, ["sql", "--db", str(db), "SELECT name FROM studies"])
+    assert sql.exit_code == 0 and study_name in sql.output, sql.output
+
+
+@pytest.mark.parametrize("journal", ["as conducted", "left in WAL mode"])
+def test_read_commands_read_a_database_on_read_only_media(sweep, tmp_path, journal):
+    # issue 12, case 3: compare said the file "cannot be written", sql "unable to open
+    # database file"; as root only the immutable attribute makes a folder read-only
+    study, _ = sweep
+    folder = tmp_path / "archive"
+    folder.mkdir()
+    db = folder / "study.sqlite"
+    shutil.copy(study.with_name("reference.sqlite"), db)
+    if journal == "left in WAL mode":  # e.g. copied from a conduct that was killed
+        sqlite3.connect(db).execute("PRAGMA journal_mode=WAL").close()
+    undo = _make_read_only([db, folder])
+    try:
+        _read_everything(db, "reliability")
+        assert sorted(p.name for p in folder.iterdir()) == ["study.sqlite"]
+    finally:
+        undo()
+
+
+def test_reading_leaves_no_file_beside_a_finished_database(sweep, tmp_path):
+    # issue 12, case 3: every read command left -wal and -shm files behind
+    study, _ = sweep
+    db = tmp_path / "finished.sqlite"
+    shutil.copy(study.with_name("reference.sqlite"), db)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["finished.sqlite"]
+    before = db.read_bytes()
+    _read_everything(db, "reliability")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["finished.sqlite"]
+    assert db.read_bytes() == before
+
+
 def test_damaged_and_newer_databases_are_refused_untouched(sweep, tmp_path):
     study, _ = sweep
     db = tmp_path / "damaged.sqlite"
