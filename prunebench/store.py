@@ -14,12 +14,9 @@ a finished database is one self-contained file that readers open read-only
 from __future__ import annotations
 
 import datetime as _dt
-import fcntl
 import hashlib
 import json
-import os
 import platform
-import socket
 import sqlite3
 import sys
 from collections.abc import Callable
@@ -27,6 +24,7 @@ from pathlib import Path
 
 import sqlite_utils
 
+from . import lockfile
 from ._version import __version__
 from .exceptions import PrunebenchError
 
@@ -188,25 +186,6 @@ def _explain(path: Path, err: sqlite3.Error, reading: bool = False) -> StoreErro
     return StoreError(f"{path}: cannot use this results database: {text}")
 
 
-def _lock_path(path: Path) -> Path:
-    return path.with_name(path.name + ".lock")
-
-
-def _writer_active(path: Path) -> bool:
-    """True while a conducting process holds the database's lock file."""
-    try:
-        handle = open(_lock_path(path))
-    except OSError:
-        return False  # no lock file: nobody has conducted here, or it was removed
-    with handle:
-        try:
-            fcntl.flock(handle, fcntl.LOCK_SH | fcntl.LOCK_NB)
-        except BlockingIOError:
-            return True
-        fcntl.flock(handle, fcntl.LOCK_UN)
-        return False
-
-
 def connect_readonly(path: str | Path) -> sqlite3.Connection:
     """Open a results database for reading only, without creating any file beside it.
 
@@ -238,7 +217,7 @@ def connect_readonly(path: str | Path) -> sqlite3.Connection:
         return conn
     except sqlite3.OperationalError as err:
         conn.close()
-        if "unable to open" not in str(err) or _writer_active(path):
+        if "unable to open" not in str(err) or lockfile.writer_active(path):
             raise _explain(path, err, reading=True) from None
     conn = sqlite3.connect(uri + "&immutable=1", uri=True)
     try:
@@ -247,37 +226,6 @@ def connect_readonly(path: str | Path) -> sqlite3.Connection:
         conn.close()
         raise _explain(path, err, reading=True) from None
     return conn
-
-
-def _is_current(handle, lock_path: Path) -> bool:
-    """Whether an open lock file is still the one at ``lock_path`` (not replaced)."""
-    try:
-        now = os.stat(lock_path)
-    except FileNotFoundError:
-        return False
-    held = os.fstat(handle.fileno())
-    return (held.st_dev, held.st_ino) == (now.st_dev, now.st_ino)
-
-
-def _holder_gone(holder: str) -> bool:
-    """Whether the process a lock file names ("pid N on HOST") no longer exists here."""
-    parts = holder.split()
-    if len(parts) < 2 or parts[0] != "pid" or not parts[1].isdigit():
-        return False  # not written by this version: do not guess
-    if len(parts) >= 4 and parts[2] == "on" and parts[3] != socket.gethostname():
-        return False  # another machine's process: it cannot be checked from here
-    pid = int(parts[1])
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return True
-    except PermissionError:
-        return False
-    try:  # a zombie has ended; only its parent has not collected it yet
-        stat = Path(f"/proc/{pid}/stat").read_text()
-        return stat.rsplit(")", 1)[1].split()[0] == "Z"
-    except (OSError, IndexError):
-        return False
 
 
 def utc_now() -> str:
@@ -348,67 +296,24 @@ class ResultStore:
         return None if self._lock_handle is None else self._lock_handle.fileno()
 
     def _take_lock(self) -> None:
-        lock_path = _lock_path(self.path)
-        for _ in range(5):
-            try:
-                lock_path.parent.mkdir(parents=True, exist_ok=True)
-                handle = open(lock_path, "a+")
-            except OSError as err:
-                raise StoreError(
-                    f"{self.path} cannot be written: its lock file {lock_path.name} cannot be "
-                    f"created ({err.strerror}); is the folder read-only?"
-                ) from None
-            try:
-                fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
-            except BlockingIOError:
-                handle.seek(0)
-                holder = handle.read().strip() or "another process"
-                handle.close()
-                if not _holder_gone(holder):
-                    raise StoreError(
-                        f"{self.path} is being written by another 'prunebench conduct' "
-                        f"({holder}); wait for it to finish or stop it first"
-                    ) from None
-                self._replace_stale_lock(lock_path)
-                continue
-            if _is_current(handle, lock_path):
-                handle.seek(0)
-                handle.truncate()
-                handle.write(f"pid {os.getpid()} on {socket.gethostname()}")
-                handle.flush()
-                self._lock_handle = handle
-                return
-            handle.close()  # replaced by a takeover while we waited: lock the new file
-        raise StoreError(f"{self.path}: its lock file {lock_path.name} keeps changing; try again")
-
-    @staticmethod
-    def _replace_stale_lock(lock_path: Path) -> None:
-        """Put a fresh lock file in place of one whose holder has died.
-
-        Processes the dead holder left behind may still hold the old file's lock;
-        a new file (a new inode) is free of it.  The swap happens under a second,
-        short-lived lock so two processes cannot both take over.
-        """
-        guard_path = lock_path.with_name(lock_path.name + ".takeover")
-        with open(guard_path, "a+") as guard:
-            fcntl.flock(guard, fcntl.LOCK_EX)
-            with open(lock_path, "a+") as current:
-                try:
-                    fcntl.flock(current, fcntl.LOCK_EX | fcntl.LOCK_NB)
-                    fcntl.flock(current, fcntl.LOCK_UN)
-                    return  # free again: nothing to replace
-                except BlockingIOError:
-                    current.seek(0)
-                    if not _holder_gone(current.read().strip()):
-                        return  # someone else took it over first; the caller sees them
-            fresh = lock_path.with_name(f"{lock_path.name}.{os.getpid()}.new")
-            fresh.write_text("")
-            os.replace(fresh, lock_path)
+        lock_path = lockfile.lock_path(self.path)
+        try:
+            handle, holder = lockfile.acquire(lock_path)
+        except OSError as err:
+            raise StoreError(
+                f"{self.path} cannot be written: its lock file {lock_path.name} cannot be "
+                f"created ({err.strerror}); is the folder read-only?"
+            ) from None
+        if handle is None:
+            raise StoreError(
+                f"{self.path} is being written by another 'prunebench conduct' "
+                f"({holder}); wait for it to finish or stop it first"
+            )
+        self._lock_handle = handle
 
     def _release_lock(self) -> None:
         if self._lock_handle is not None:
-            fcntl.flock(self._lock_handle, fcntl.LOCK_UN)
-            self._lock_handle.close()
+            lockfile.release(self._lock_handle)
             self._lock_handle = None
 
     def _prepare(self) -> None:
