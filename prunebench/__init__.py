@@ -2,23 +2,35 @@
 
 The pruning engine (:mod:`prunebench.pruning`), the CV choice of alpha
 (:mod:`prunebench.selection`) and the estimators built on them
-(:mod:`prunebench.estimators`) are re-exported here.
+(:mod:`prunebench.estimators`) are re-exported here.  They are imported on first
+use (a module-level ``__getattr__``), so ``import prunebench`` and the command
+line start without scikit-learn, pandas, matplotlib or Optuna.
 """
 
-from .estimators import PrunedTreeClassifier, PrunedTreeRegressor
-from .exceptions import InvalidParameterError, PrunebenchError
-from .pruning import PRUNE_RISKS, PruningPath, cart_candidates, pruning_path
-from .results import Results, open_results
-from .selection import (
-    AlphaSelection,
-    MinimumRule,
-    SelectionRule,
-    StandardErrorRule,
-    parse_rule,
-    select_alpha,
-)
+from __future__ import annotations
 
-__version__ = "0.1.0"
+import importlib
+
+from ._version import __version__
+from .exceptions import InvalidParameterError, PrunebenchError
+
+# public name -> the module that defines it, imported when the name is first asked for
+_LAZY = {
+    "PRUNE_RISKS": "pruning",
+    "PruningPath": "pruning",
+    "cart_candidates": "pruning",
+    "pruning_path": "pruning",
+    "PrunedTreeClassifier": "estimators",
+    "PrunedTreeRegressor": "estimators",
+    "Results": "results",
+    "open_results": "results",
+    "AlphaSelection": "selection",
+    "MinimumRule": "selection",
+    "SelectionRule": "selection",
+    "StandardErrorRule": "selection",
+    "parse_rule": "selection",
+    "select_alpha": "selection",
+}
 
 __all__ = [
     "PRUNE_RISKS",
@@ -39,3 +51,16 @@ __all__ = [
     "pruning_path",
     "select_alpha",
 ]
+
+
+def __getattr__(name: str):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'prunebench' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value  # later lookups skip this function
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

@@ -146,9 +146,12 @@ def check(study_file, workers) -> None:
     Nothing is written. The estimate times one tree fit per data set and scales it
     by the number of fits; trees with a depth limit or larger leaves fit faster.
     """
-    from .execute import default_database, plan
+    from .execute import default_database, plan, usable_workers
     from .study import load_study
 
+    workers, note = usable_workers(workers)
+    if note:
+        click.echo(f"note: {note}")
     study = load_study(study_file)
     if study.search is not None:
         spec = study.search

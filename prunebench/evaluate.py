@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import hashlib
 import time
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -30,6 +31,7 @@ from .selection import select_alpha
 __all__ = [
     "CLASSIFICATION_METRICS",
     "REGRESSION_METRICS",
+    "EvaluationSettings",
     "GroupResult",
     "TrialTimeout",
     "derive_seed",
@@ -43,35 +45,65 @@ REGRESSION_METRICS = ("mse", "mae", "r2")
 _PROBA_CLIP = 1e-15
 
 
+@dataclass(frozen=True)
+class EvaluationSettings:
+    """What every trial group of a study is evaluated with, in one immutable value.
+
+    Attributes
+    ----------
+    seed : int
+        The study seed (outer splits, trees and inner splits derive from it).
+    repeats, folds : int
+        The outer scheme: ``repeats`` x ``folds``-fold cross-validation.
+    time_limit : float, optional
+        Seconds one trial group may take (checked before every tree fit).
+    """
+
+    seed: int
+    repeats: int
+    folds: int
+    time_limit: float | None = None
+
+    @classmethod
+    def of(cls, study) -> EvaluationSettings:
+        """The settings of a :class:`~prunebench.study.Study`."""
+        return cls(
+            seed=study.seed, repeats=study.repeats, folds=study.folds, time_limit=study.time_limit
+        )
+
+
 def derive_seed(*parts: object) -> int:
     """A 32-bit seed from any parts, stable across runs and platforms."""
     digest = hashlib.sha256(":".join(map(str, parts)).encode()).digest()
     return int.from_bytes(digest[:4], "little")
 
 
-def outer_splits(data: LoadedDataset, seed: int, repeats: int, folds: int) -> list:
+def outer_splits(data: LoadedDataset, settings: EvaluationSettings) -> Iterator[tuple]:
     """The outer (repeat, fold, train, test) splits of a data set, fixed by seed and data.
+
+    The splits are generated one repeat at a time, as they are used, so the number
+    of repeats costs no memory.
 
     Parameters
     ----------
     data : LoadedDataset
-    seed : int
-        The study seed.
-    repeats, folds : int
+    settings : EvaluationSettings
+        Its ``seed``, ``repeats`` and ``folds``.
 
-    Returns
-    -------
-    list of (int, int, ndarray, ndarray)
+    Yields
+    ------
+    tuple of (int, int, ndarray, ndarray)
     """
-    rs = derive_seed(seed, data.fingerprint, "outer")
+    folds = settings.folds
+    rs = derive_seed(settings.seed, data.fingerprint, "outer")
     if is_classification(data.task):
-        splitter = RepeatedStratifiedKFold(n_splits=folds, n_repeats=repeats, random_state=rs)
+        splitter = RepeatedStratifiedKFold(
+            n_splits=folds, n_repeats=settings.repeats, random_state=rs
+        )
     else:
-        splitter = RepeatedKFold(n_splits=folds, n_repeats=repeats, random_state=rs)
-    out = []
+        splitter = RepeatedKFold(n_splits=folds, n_repeats=settings.repeats, random_state=rs)
     for i, (train, test) in enumerate(splitter.split(data.X, data.y)):
-        out.append((i // folds, i % folds, train, test))
-    return out
+        yield i // folds, i % folds, train, test
 
 
 def rows_fingerprint(test: np.ndarray) -> str:
@@ -101,6 +133,13 @@ class GroupResult:
     curves: list[dict] = field(default_factory=list)
     n_fits: int = 0
     seconds: float = 0.0
+
+
+def _scores(model, X, y, classes) -> dict:
+    """Every metric of the task family (``classes`` is None for regression)."""
+    if classes is None:
+        return _regression_scores(model, X, y)
+    return _classification_scores(model, X, y, classes)
 
 
 def _classification_scores(model, X, y, classes) -> dict:
@@ -137,14 +176,116 @@ class TrialTimeout(PrunebenchError):
     """A trial group ran past the study's ``time_limit``."""
 
 
-def evaluate_group(
-    group,
-    data: LoadedDataset,
-    seed: int,
-    repeats: int,
-    folds: int,
-    time_limit: float | None = None,
-) -> GroupResult:
+class _Clock:
+    """The group's time limit, checked before every tree fit."""
+
+    def __init__(self, limit: float | None) -> None:
+        self.limit = limit
+        self.start = time.perf_counter()
+
+    def elapsed(self) -> float:
+        return time.perf_counter() - self.start
+
+    def check(self) -> None:
+        if self.limit is not None and self.elapsed() > self.limit:
+            raise TrialTimeout(
+                f"stopped: the trial group ran past the study's time_limit of {self.limit:g} s "
+                f"({self.elapsed():.1f} s)"
+            )
+
+
+@dataclass
+class _OuterFit:
+    """T_max of one outer fold and the inner-CV choice of alpha on its training rows."""
+
+    full: object
+    selection: object
+    fit_full: float
+    fit_inner: float
+
+
+def _tree_template(group, data: LoadedDataset, settings: EvaluationSettings, repeat, fold):
+    tree_class = DecisionTreeClassifier if is_classification(data.task) else DecisionTreeRegressor
+    return tree_class(
+        criterion=group.criterion,
+        max_depth=group.max_depth,
+        min_samples_leaf=group.min_samples_leaf,
+        random_state=derive_seed(settings.seed, data.fingerprint, repeat, fold, "tree"),
+    )
+
+
+def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock) -> _OuterFit:
+    """Grow T_max once, then choose every rule's alpha by inner K-fold CV (shared fits)."""
+    template = _tree_template(group, data, settings, repeat, fold)
+    clock.check()
+    t0 = time.perf_counter()
+    full = clone(template).fit(X_train, y_train)
+    fit_full = time.perf_counter() - t0
+    inner_seed = derive_seed(settings.seed, data.fingerprint, repeat, fold, "inner")
+    splitter_class = StratifiedKFold if is_classification(data.task) else KFold
+    inner = splitter_class(group.inner_folds, shuffle=True, random_state=inner_seed)
+    t0 = time.perf_counter()
+    selection = select_alpha(
+        template,
+        X_train,
+        y_train,
+        cv=inner,
+        risk=group.prune_risk,
+        rules=group.rules,
+        fitted=full,
+        before_fit=clock.check,
+    )
+    return _OuterFit(full, selection, fit_full, time.perf_counter() - t0)
+
+
+def _arm_row(trial_id: str, common: dict, arm: str, model, scores: dict, alpha, seconds) -> dict:
+    return {
+        "trial_id": trial_id,
+        **common,
+        "arm": arm,
+        **scores,
+        "n_leaves": int(model.get_n_leaves()),
+        "depth": int(model.get_depth()),
+        "alpha": alpha,
+        "fit_seconds": seconds,
+    }
+
+
+def _fold_rows(group, common: dict, fit: _OuterFit, X_test, y_test, classes) -> list[dict]:
+    """Both arms of every trial on one outer fold's test rows."""
+    rows = []
+    scores_full = _scores(fit.full, X_test, y_test, classes)
+    for trial in group.trials:
+        rows.append(
+            _arm_row(trial.trial_id, common, "unpruned", fit.full, scores_full, 0.0, fit.fit_full)
+        )
+        t0 = time.perf_counter()
+        alpha = fit.selection.alpha(trial.rule)
+        pruned = fit.selection.path.prune(alpha)
+        seconds = fit.fit_full + fit.fit_inner + time.perf_counter() - t0
+        scores = _scores(pruned, X_test, y_test, classes)
+        rows.append(_arm_row(trial.trial_id, common, "pruned", pruned, scores, alpha, seconds))
+    return rows
+
+
+def _curve_rows(group_id: str, repeat: int, fold: int, curve) -> list[dict]:
+    """The inner-CV curve of one outer fold, one row per candidate alpha."""
+    return [
+        {
+            "group_id": group_id,
+            "repeat": repeat,
+            "fold": fold,
+            "candidate": i,
+            "alpha": float(row.alpha),
+            "n_leaves": int(row.n_leaves),
+            "mean": float(row.mean),
+            "se": float(row.se),
+        }
+        for i, row in enumerate(curve.itertuples(index=False))
+    ]
+
+
+def evaluate_group(group, data: LoadedDataset, settings: EvaluationSettings) -> GroupResult:
     """Evaluate every trial of a group on every outer fold.
 
     Parameters
@@ -152,61 +293,21 @@ def evaluate_group(
     group : TrialGroup
         Trials that differ only in the rule.
     data : LoadedDataset
-    seed : int
-        The study seed.
-    repeats, folds : int
-        The outer scheme.
-    time_limit : float, optional
-        Seconds the group may take; checked before every tree fit, so a group stops
-        within one fit of its limit and raises :class:`TrialTimeout`.
+    settings : EvaluationSettings
+        Seed, outer scheme and time limit.  The limit is checked before every tree
+        fit, so a group stops within one fit of it and raises :class:`TrialTimeout`.
 
     Returns
     -------
     GroupResult
     """
-    start = time.perf_counter()
-
-    def check_time() -> None:
-        if time_limit is not None and time.perf_counter() - start > time_limit:
-            raise TrialTimeout(
-                f"stopped: the trial group ran past the study's time_limit of {time_limit:g} s "
-                f"({time.perf_counter() - start:.1f} s)"
-            )
-
-    classification = is_classification(data.task)
-    classes = np.unique(data.y) if classification else None
-    tree_class = DecisionTreeClassifier if classification else DecisionTreeRegressor
+    clock = _Clock(settings.time_limit)
+    classes = np.unique(data.y) if is_classification(data.task) else None
     result = GroupResult(group_id=group.group_id)
     X, y = data.X, data.y
-    for repeat, fold, train, test in outer_splits(data, seed, repeats, folds):
-        X_train, y_train, X_test, y_test = X[train], y[train], X[test], y[test]
-        tree_seed = derive_seed(seed, data.fingerprint, repeat, fold, "tree")
-        template = tree_class(
-            criterion=group.criterion,
-            max_depth=group.max_depth,
-            min_samples_leaf=group.min_samples_leaf,
-            random_state=tree_seed,
-        )
-        check_time()
-        t0 = time.perf_counter()
-        full = clone(template).fit(X_train, y_train)
-        fit_full = time.perf_counter() - t0
-        inner_seed = derive_seed(seed, data.fingerprint, repeat, fold, "inner")
-        splitter_class = StratifiedKFold if classification else KFold
-        inner = splitter_class(group.inner_folds, shuffle=True, random_state=inner_seed)
-        t0 = time.perf_counter()
-        selection = select_alpha(
-            template,
-            X_train,
-            y_train,
-            cv=inner,
-            risk=group.prune_risk,
-            rules=group.rules,
-            fitted=full,
-            before_fit=check_time,
-        )
-        fit_inner = time.perf_counter() - t0
-        result.n_fits += selection.n_fits + 1
+    for repeat, fold, train, test in outer_splits(data, settings):
+        fit = _fit_outer_fold(group, data, settings, repeat, fold, X[train], y[train], clock)
+        result.n_fits += fit.selection.n_fits + 1
         common = {
             "repeat": repeat,
             "fold": fold,
@@ -214,57 +315,7 @@ def evaluate_group(
             "n_test": int(test.size),
             "test_fingerprint": rows_fingerprint(test),
         }
-        scores_full = (
-            _classification_scores(full, X_test, y_test, classes)
-            if classification
-            else _regression_scores(full, X_test, y_test)
-        )
-        for trial in group.trials:
-            result.folds.append(
-                {
-                    "trial_id": trial.trial_id,
-                    **common,
-                    "arm": "unpruned",
-                    **scores_full,
-                    "n_leaves": int(full.get_n_leaves()),
-                    "depth": int(full.get_depth()),
-                    "alpha": 0.0,
-                    "fit_seconds": fit_full,
-                }
-            )
-            t0 = time.perf_counter()
-            alpha = selection.alpha(trial.rule)
-            pruned = selection.path.prune(alpha)
-            prune_time = time.perf_counter() - t0
-            scores = (
-                _classification_scores(pruned, X_test, y_test, classes)
-                if classification
-                else _regression_scores(pruned, X_test, y_test)
-            )
-            result.folds.append(
-                {
-                    "trial_id": trial.trial_id,
-                    **common,
-                    "arm": "pruned",
-                    **scores,
-                    "n_leaves": int(pruned.get_n_leaves()),
-                    "depth": int(pruned.get_depth()),
-                    "alpha": alpha,
-                    "fit_seconds": fit_full + fit_inner + prune_time,
-                }
-            )
-        for i, row in enumerate(selection.curve.itertuples(index=False)):
-            result.curves.append(
-                {
-                    "group_id": group.group_id,
-                    "repeat": repeat,
-                    "fold": fold,
-                    "candidate": i,
-                    "alpha": float(row.alpha),
-                    "n_leaves": int(row.n_leaves),
-                    "mean": float(row.mean),
-                    "se": float(row.se),
-                }
-            )
-    result.seconds = time.perf_counter() - start
+        result.folds += _fold_rows(group, common, fit, X[test], y[test], classes)
+        result.curves += _curve_rows(group.group_id, repeat, fold, fit.selection.curve)
+    result.seconds = clock.elapsed()
     return result

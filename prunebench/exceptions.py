@@ -6,7 +6,13 @@ a non-zero exit code; anything else is a bug and keeps its traceback.
 
 from __future__ import annotations
 
-__all__ = ["PrunebenchError", "InvalidParameterError"]
+__all__ = [
+    "ConductStopped",
+    "InvalidParameterError",
+    "PrunebenchError",
+    "RunnerError",
+    "WorkerLost",
+]
 
 
 class PrunebenchError(Exception):
@@ -47,3 +53,29 @@ def parameter_error(name: str, owner: str, expected: str, got: object) -> Invali
     return InvalidParameterError(
         f"The {name!r} parameter of {owner} must be {expected}. Got {got!r} instead."
     )
+
+
+class ConductStopped(PrunebenchError):
+    """A ``conduct`` stopped before its end: interrupted, or a worker process died.
+
+    Every trial group finished before the stop is stored; running the same study
+    again resumes.  The exit code follows the shell's convention for a signal
+    (130 for SIGINT, 143 for SIGTERM) and is 1 for a lost worker.
+    """
+
+    def __init__(self, message: str, exit_code: int = 1) -> None:
+        super().__init__(message)
+        self.exit_code = exit_code
+
+
+class RunnerError(PrunebenchError):
+    """A runner cannot start as asked (a cluster that does not answer, Dask missing)."""
+
+    exit_code = 2
+
+
+class WorkerLost(PrunebenchError):
+    """A worker process died while it ran a trial group; its pool cannot go on.
+
+    ``conduct`` turns it into :class:`ConductStopped` with the count of stored trials.
+    """

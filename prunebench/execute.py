@@ -1,30 +1,44 @@
-"""Running a study: trial groups on a local process pool, one writer, resumable.
+"""Running a study: trial groups through a runner, one writer, resumable.
 
 The sweep process is the only writer.  It records every trial as ``pending``,
-hands the unfinished groups to workers (or runs them itself with one worker),
-and stores each group's rows with its ``done`` status in one transaction as the
-group finishes, so a crash or a kill leaves only whole groups behind and the
-next run picks up where this one stopped.
+hands the unfinished groups to a runner (:mod:`prunebench.runners`: this
+process, a local pool or Dask), and stores each group's rows with its ``done``
+status in one transaction as the group finishes, so a crash or a kill leaves
+only whole groups behind and the next run picks up where this one stopped.
+Ctrl-C (SIGINT), SIGTERM and a lost worker end the workers and raise
+:class:`~prunebench.exceptions.ConductStopped`, which says how many trials are
+stored and that the same command resumes.
 """
 
 from __future__ import annotations
 
+import contextlib
+import os
+import signal
 import sys
+import threading
 import time
-import traceback
-from collections.abc import Callable
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TextIO
 
-from .datasets import load_dataset, register_manifest
-from .evaluate import GroupResult, evaluate_group
-from .exceptions import PrunebenchError
-from .store import ResultStore, utc_now
+from .evaluate import EvaluationSettings
+from .exceptions import ConductStopped, PrunebenchError, WorkerLost
+from .runners import GroupTask, Outcome, make_runner
+from .store import ResultStore
 from .study import Study, TrialGroup
 
-__all__ = ["ConductSummary", "GroupRunner", "Progress", "conduct", "default_database", "plan"]
+__all__ = [
+    "ConductError",
+    "ConductSummary",
+    "GroupRunner",
+    "Progress",
+    "conduct",
+    "default_database",
+    "plan",
+    "usable_workers",
+]
 
 
 class ConductError(PrunebenchError):
@@ -116,6 +130,12 @@ class Progress:
             self.stream.flush()
             self._last = now
 
+    def note(self, text: str | None) -> None:
+        """Write a one-line note (e.g. a clamped worker count) on the progress stream."""
+        if text:
+            self.stream.write(f"note: {text}\n")
+            self.stream.flush()
+
     def close(self) -> None:
         """End the line on a terminal."""
         if self._tty:
@@ -128,51 +148,6 @@ def _duration(seconds: float) -> str:
     h, rest = divmod(seconds, 3600)
     m, s = divmod(rest, 60)
     return f"{h}h{m:02d}m" if h else f"{m}m{s:02d}s"
-
-
-@dataclass
-class _Task:
-    group: TrialGroup
-    dataset_name: str
-    dataset_params: dict
-    manifest: str | None
-    fingerprint: str
-    seed: int
-    repeats: int
-    folds: int
-    time_limit: float | None = None
-
-
-@dataclass
-class _Outcome:
-    group: TrialGroup
-    result: GroupResult | None
-    error: str | None
-    started: str
-    finished: str
-    seconds: float
-
-
-def _run_task(task: _Task) -> _Outcome:
-    """Evaluate one group; any exception becomes the outcome's error text."""
-    started, t0 = utc_now(), time.perf_counter()
-    try:
-        if task.manifest is not None:
-            register_manifest(task.manifest)
-        data = load_dataset(task.dataset_name, **task.dataset_params)
-        if data.fingerprint != task.fingerprint:
-            raise RuntimeError(
-                f"dataset {task.dataset_name!r} loaded in a worker differs from the sweep's "
-                "(fingerprints differ)"
-            )
-        result = evaluate_group(
-            task.group, data, task.seed, task.repeats, task.folds, task.time_limit
-        )
-        return _Outcome(task.group, result, None, started, utc_now(), time.perf_counter() - t0)
-    except Exception:  # noqa: BLE001 - a failed trial keeps its traceback; the sweep goes on
-        return _Outcome(
-            task.group, None, traceback.format_exc(), started, utc_now(), time.perf_counter() - t0
-        )
 
 
 def plan(study: Study) -> list[dict]:
@@ -225,8 +200,41 @@ def plan(study: Study) -> list[dict]:
     return out
 
 
+def usable_workers(workers: int) -> tuple[int, str | None]:
+    """The number of local worker processes to start for ``workers`` asked, with a note.
+
+    More processes than the CPUs this process may use only compete for the same
+    CPUs (each with its own copy of the data), so a larger count is clamped to the
+    CPU count and the note says so.
+
+    Parameters
+    ----------
+    workers : int
+
+    Returns
+    -------
+    (int, str or None)
+        The count to use and, when it differs from the one asked, why.
+    """
+    if workers < 1:
+        raise ConductError(f"workers must be at least 1; got {workers}")
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        cpus = os.cpu_count() or 1
+    if workers <= cpus:
+        return workers, None
+    return cpus, (
+        f"workers = {workers} is more than the {cpus} CPUs here; using {cpus} (more worker "
+        "processes would only compete for the same CPUs, each with its own copy of the data)"
+    )
+
+
 class GroupRunner:
-    """Runs trial groups and stores each outcome as it arrives; the only writer.
+    """Runs trial groups through a runner and stores each outcome as it arrives.
+
+    The only writer.  Which runner evaluates the groups (this process, a local
+    pool, a Dask cluster) is chosen by :func:`prunebench.runners.make_runner`.
 
     Parameters
     ----------
@@ -249,84 +257,44 @@ class GroupRunner:
         self, store, study, summary, progress, workers=1, on_group=None, cluster=None
     ) -> None:
         self.store, self.study, self.summary = store, study, summary
-        self.progress, self.workers, self.on_group = progress, workers, on_group
-        self.cluster = cluster
-        self._pool = None
-        self._client = None
-        self._own_client = False
+        self.progress, self.on_group = progress, on_group
+        self.settings = EvaluationSettings.of(study)
+        close = () if store.lock_fd is None else (store.lock_fd,)
+        self.runner = make_runner(workers, cluster, close_fds=close)
+
+    @property
+    def workers(self) -> int:
+        """How many groups run at the same time."""
+        return self.runner.workers
 
     def __enter__(self) -> GroupRunner:
-        if self.cluster is not None:
-            try:
-                from distributed import Client
-            except ImportError:
-                raise ConductError(
-                    "--cluster needs Dask's distributed scheduler: pip install 'prunebench[dask]'"
-                ) from None
-            if isinstance(self.cluster, str):
-                try:
-                    self._client = Client(self.cluster, timeout="10s")
-                except OSError as err:
-                    raise ConductError(
-                        f"cannot reach the Dask scheduler at {self.cluster}: {err}"
-                    ) from None
-                self._own_client = True
-            else:
-                self._client = self.cluster
-            self.workers = max(len(self._client.scheduler_info().get("workers", {})), 1)
-        elif self.workers > 1:
-            self._pool = ProcessPoolExecutor(max_workers=self.workers)
+        self.runner.__enter__()
         return self
 
     def __exit__(self, *exc) -> None:
-        if self._pool is not None:
-            self._pool.shutdown(cancel_futures=True)
-        if self._own_client:
-            self._client.close()
-        self.progress.close()
+        try:
+            self.runner.__exit__(*exc)
+        finally:
+            self.progress.close()
 
-    def _task(self, g: TrialGroup) -> _Task:
-        name, params, manifest = self.study.dataset_specs[g.dataset]
-        return _Task(
-            group=g,
+    def task(self, group: TrialGroup) -> GroupTask:
+        """Everything a worker needs to evaluate ``group``."""
+        name, params, manifest = self.study.dataset_specs[group.dataset]
+        return GroupTask(
+            group=group,
             dataset_name=name,
             dataset_params=params,
             manifest=manifest,
-            fingerprint=self.study.datasets[g.dataset].fingerprint,
-            seed=self.study.seed,
-            repeats=self.study.repeats,
-            folds=self.study.folds,
-            time_limit=self.study.time_limit,
+            fingerprint=self.study.datasets[group.dataset].fingerprint,
+            settings=self.settings,
         )
 
-    def run(self, groups: list[TrialGroup]) -> list[_Outcome]:
+    def run(self, groups: list[TrialGroup]) -> list[Outcome]:
         """Evaluate groups (in parallel when there are workers) and store each outcome."""
-        tasks = [self._task(g) for g in groups]
-        outcomes = []
-        if self._client is not None:
-            from distributed import as_completed as completed
+        tasks = [self.task(g) for g in groups]
+        return [self._store(outcome) for outcome in self.runner.outcomes(tasks)]
 
-            futures = {
-                self._client.submit(_run_task, task, pure=False, retries=2): task for task in tasks
-            }
-            for future in completed(list(futures)):
-                try:
-                    outcome = future.result()
-                except Exception:  # noqa: BLE001 - e.g. every worker it ran on was lost
-                    task = futures[future]
-                    now = utc_now()
-                    outcome = _Outcome(task.group, None, traceback.format_exc(), now, now, 0.0)
-                outcomes.append(self._store(outcome))
-        elif self._pool is None or len(tasks) <= 1:
-            for task in tasks:
-                outcomes.append(self._store(_run_task(task)))
-        else:
-            futures = [self._pool.submit(_run_task, task) for task in tasks]
-            for future in as_completed(futures):
-                outcomes.append(self._store(future.result()))
-        return outcomes
-
-    def _store(self, outcome: _Outcome) -> _Outcome:
+    def _store(self, outcome: Outcome) -> Outcome:
         t0 = time.perf_counter()
         n = len(outcome.group.trials)
         if outcome.error is None:
@@ -354,6 +322,56 @@ class GroupRunner:
         return outcome
 
 
+class _Signalled(BaseException):
+    """SIGINT or SIGTERM arrived: unwind (not an ``Exception``, so no trial records it)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+@contextlib.contextmanager
+def _stop_on_signals() -> Iterator[None]:
+    """Turn the first SIGINT or SIGTERM into :class:`_Signalled`; ignore more until done.
+
+    Signal handlers can only be set from the main thread; elsewhere Ctrl-C still
+    arrives as ``KeyboardInterrupt``.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    wanted = (signal.SIGINT, signal.SIGTERM)
+
+    def handler(signum, frame):
+        for s in wanted:
+            signal.signal(s, signal.SIG_IGN)  # a second Ctrl-C must not break the cleanup
+        raise _Signalled(signum)
+
+    previous = {s: signal.signal(s, handler) for s in wanted}
+    try:
+        yield
+    finally:
+        for s, old in previous.items():
+            signal.signal(s, old)
+
+
+def _stopped(reason: BaseException, store: ResultStore, study: Study) -> ConductStopped:
+    """The one line a stopped conduct ends with: why, what is stored, how to resume."""
+    statuses = store.statuses(study.study_id)
+    done = sum(status == "done" for status in statuses.values())
+    if isinstance(reason, WorkerLost):
+        why, code = "a worker process died while it ran a trial group", 1
+    elif isinstance(reason, _Signalled) and reason.signum == signal.SIGTERM:
+        why, code = "stopped by SIGTERM", 128 + signal.SIGTERM
+    else:
+        why, code = "interrupted (SIGINT)", 128 + signal.SIGINT
+    return ConductStopped(
+        f"{why}; {done} of {len(statuses)} trials are stored in {store.path}; "
+        "running the same command again resumes",
+        exit_code=code,
+    )
+
+
 def conduct(
     study: Study,
     database: str | Path | None = None,
@@ -361,7 +379,7 @@ def conduct(
     workers: int = 1,
     retry_failed: bool = False,
     progress: Progress | None = None,
-    on_group: Callable[[_Outcome], None] | None = None,
+    on_group: Callable[[Outcome], None] | None = None,
     cluster=None,
 ) -> ConductSummary:
     """Run or resume a study; store every trial group as it finishes.
@@ -376,7 +394,9 @@ def conduct(
     database : str or Path, optional
         The results database; default :func:`default_database`.
     workers : int, default=1
-        Worker processes; 1 runs the groups in this process.
+        Worker processes; 1 runs the groups in this process.  More than the CPUs
+        here are clamped to the CPU count (see :func:`usable_workers`), with a note
+        on the progress stream.
     retry_failed : bool, default=False
         Run failed trials again.
     progress : Progress, optional
@@ -390,34 +410,62 @@ def conduct(
     Returns
     -------
     ConductSummary
+
+    Raises
+    ------
+    ConductStopped
+        On SIGINT (exit code 130), SIGTERM (143) or a lost worker process (1): the
+        workers are ended, every finished group is kept, and the message says how
+        many trials are stored.
     """
-    if workers < 1:
-        raise ConductError(f"--workers must be at least 1; got {workers}")
+    note = None
+    if cluster is None:
+        workers, note = usable_workers(workers)
     path = Path(database) if database is not None else default_database(study)
     start = time.perf_counter()
     summary = ConductSummary(database=path)
     with ResultStore(path, lock=True) as store:
         store.register_study(study)
-        if study.search is not None:
-            from .search import run_search
-
-            progress = progress or Progress(study.search.configurations * len(study.datasets))
-            with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
-                summary.search = run_search(study, store, runner, path)
-            summary.total = len(store.statuses(study.study_id))
-            summary.skipped = summary.total - summary.done - summary.failed
-        else:
-            statuses = store.statuses(study.study_id)
-            wanted = {"pending", "failed"} if retry_failed else {"pending"}
-            groups = [
-                g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)
-            ]
-            summary.total = len(study.trials())
-            todo = sum(len(g.trials) for g in groups)
-            summary.skipped = summary.total - todo
-            progress = progress or Progress(todo)
-            progress.total = todo
-            with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
-                runner.run(groups)
+        try:
+            with _stop_on_signals():
+                _run(
+                    study,
+                    store,
+                    path,
+                    summary,
+                    workers,
+                    retry_failed,
+                    progress,
+                    on_group,
+                    cluster,
+                    note,
+                )
+        except (_Signalled, KeyboardInterrupt, WorkerLost) as reason:
+            raise _stopped(reason, store, study) from None
     summary.seconds = time.perf_counter() - start
     return summary
+
+
+def _run(study, store, path, summary, workers, retry_failed, progress, on_group, cluster, note):
+    """The body of :func:`conduct`: the search, or every unfinished trial group."""
+    if study.search is not None:
+        from .search import run_search
+
+        progress = progress or Progress(study.search.configurations * len(study.datasets))
+        progress.note(note)
+        with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
+            summary.search = run_search(study, store, runner, path)
+        summary.total = len(store.statuses(study.study_id))
+        summary.skipped = summary.total - summary.done - summary.failed
+        return
+    statuses = store.statuses(study.study_id)
+    wanted = {"pending", "failed"} if retry_failed else {"pending"}
+    groups = [g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)]
+    summary.total = len(study.trials())
+    todo = sum(len(g.trials) for g in groups)
+    summary.skipped = summary.total - todo
+    progress = progress or Progress(todo)
+    progress.total = todo
+    progress.note(note)
+    with GroupRunner(store, study, summary, progress, workers, on_group, cluster) as runner:
+        runner.run(groups)

@@ -16,7 +16,7 @@ import pandas as pd
 
 from . import stats
 from .exceptions import PrunebenchError
-from .store import ResultStore, StoreError
+from .store import ResultStore, StoreError, connect_readonly
 
 __all__ = ["QueryError", "Results", "export_tables", "open_results", "progress_report", "run_query"]
 
@@ -223,10 +223,7 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
             f"refused: PRAGMA {pragma.group(1)} may change the database; "
             "'prunebench sql' runs read-only queries"
         )
-    path = Path(path)
-    if not path.exists():
-        raise StoreError(f"{path}: no such results database")
-    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    conn = connect_readonly(path)
     try:
         conn.set_authorizer(_authorize)
         try:

@@ -4,27 +4,31 @@ Tables (see the README for every column): ``studies``, ``datasets``, ``trials``,
 ``folds``, ``curves``, ``environments``; views ``arm_summary`` and
 ``fold_differences``.  The schema version is SQLite's ``user_version``; older
 files are upgraded step by step, newer ones are refused.  A conducting process
-holds an exclusive lock file beside the database, so a second one is refused.
+holds an exclusive lock file beside the database, so a second one is refused; the
+lock file names its holder's process, and a lock whose holder no longer exists is
+taken over.  A writer leaves the file in rollback-journal mode when it closes, so
+a finished database is one self-contained file that readers open read-only
+(``mode=ro``, or ``immutable=1`` on read-only media) without creating files.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
-import fcntl
 import hashlib
 import json
-import os
 import platform
 import sqlite3
 import sys
-import time
+from collections.abc import Callable
 from pathlib import Path
 
 import sqlite_utils
 
+from . import lockfile
+from ._version import __version__
 from .exceptions import PrunebenchError
 
-__all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "utc_now"]
+__all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "connect_readonly", "utc_now"]
 
 SCHEMA_VERSION = 1
 
@@ -154,7 +158,7 @@ class StoreError(PrunebenchError):
     exit_code = 1
 
 
-def _explain(path: Path, err: sqlite3.Error) -> StoreError:
+def _explain(path: Path, err: sqlite3.Error, reading: bool = False) -> StoreError:
     """One clear line for what SQLite said, with what happened to the stored results."""
     text = str(err)
     kept = "the results stored before are intact"
@@ -168,6 +172,8 @@ def _explain(path: Path, err: sqlite3.Error) -> StoreError:
             f"{path} is locked by another program writing to it ({text}); "
             f"{kept}: close that program and run the same command again"
         )
+    if reading and "unable to open" in text:
+        return StoreError(f"{path} cannot be read (no permission, or not a file: {text})")
     if "readonly" in text or "read-only" in text or "unable to open" in text:
         return StoreError(
             f"{path} cannot be written (read-only file or folder, or no permission: {text}); {kept}"
@@ -180,10 +186,46 @@ def _explain(path: Path, err: sqlite3.Error) -> StoreError:
     return StoreError(f"{path}: cannot use this results database: {text}")
 
 
-# Fault injection for the reliability tests: with PRUNEBENCH_FAULT_WRITE_PAUSE set, each
-# group's transaction touches PRUNEBENCH_FAULT_MARKER and sleeps before it commits, so a
-# test can kill the process in the middle of a write. Never set in normal use.
-_PAUSE_ENV, _MARKER_ENV = "PRUNEBENCH_FAULT_WRITE_PAUSE", "PRUNEBENCH_FAULT_MARKER"
+def connect_readonly(path: str | Path) -> sqlite3.Connection:
+    """Open a results database for reading only, without creating any file beside it.
+
+    A finished database (rollback-journal mode) opens with ``mode=ro``.  A database
+    left in WAL mode on read-only media, whose ``-wal`` and ``-shm`` files cannot be
+    created, opens with ``immutable=1`` when no conducting process holds its lock
+    (then nothing can change it while it is read).
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    sqlite3.Connection
+
+    Raises
+    ------
+    StoreError
+        If the file is missing or cannot be read.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise StoreError(f"{path}: no such results database")
+    uri = f"file:{path.absolute().as_posix()}?mode=ro"
+    conn = sqlite3.connect(uri, uri=True)
+    try:
+        conn.execute("PRAGMA schema_version").fetchone()
+        return conn
+    except sqlite3.OperationalError as err:
+        conn.close()
+        if "unable to open" not in str(err) or lockfile.writer_active(path):
+            raise _explain(path, err, reading=True) from None
+    conn = sqlite3.connect(uri + "&immutable=1", uri=True)
+    try:
+        conn.execute("PRAGMA schema_version").fetchone()
+    except sqlite3.Error as err:
+        conn.close()
+        raise _explain(path, err, reading=True) from None
+    return conn
 
 
 def utc_now() -> str:
@@ -199,25 +241,41 @@ class ResultStore:
     path : str or Path
         The SQLite file; created (with its schema) if missing, unless ``readonly``.
     readonly : bool, default=False
-        Open without writing; the file must exist.
+        Open without writing (see :func:`connect_readonly`); the file must exist.
     lock : bool, default=False
-        Take the conducting lock: refuse if another process holds it.
+        Take the conducting lock: refuse if another living process holds it.
+    write_hook : callable, optional
+        Called with no arguments inside each group's transaction, just before it
+        commits; the reliability tests use it to kill a process in the middle of a
+        write.  Default: the class attribute :attr:`write_hook` (``None``).
     """
 
     #: seconds a write waits for another program's lock before giving up
     busy_timeout = 30.0
+    #: the hook stores use when none is given (set only by fault-injection tests)
+    write_hook: Callable[[], None] | None = None
 
-    def __init__(self, path: str | Path, *, readonly: bool = False, lock: bool = False) -> None:
+    def __init__(
+        self,
+        path: str | Path,
+        *,
+        readonly: bool = False,
+        lock: bool = False,
+        write_hook: Callable[[], None] | None = None,
+    ) -> None:
         self.path = Path(path)
         self.readonly = readonly
+        if write_hook is not None:
+            self.write_hook = write_hook
         self._lock_handle = None
+        self._in_wal = False
         if readonly and not self.path.exists():
             raise StoreError(f"{self.path}: no such results database")
         if lock:
             self._take_lock()
         try:
             if readonly:
-                conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True)
+                conn = connect_readonly(self.path)
             else:
                 self.path.parent.mkdir(parents=True, exist_ok=True)
                 conn = sqlite3.connect(self.path, timeout=self.busy_timeout)
@@ -225,43 +283,37 @@ class ResultStore:
             self._prepare()
         except sqlite3.Error as err:
             self._release_lock()
-            raise _explain(self.path, err) from None
+            raise _explain(self.path, err, reading=readonly) from None
         except StoreError:
             self._release_lock()
             raise
 
     # -- opening --------------------------------------------------------------------------
 
+    @property
+    def lock_fd(self) -> int | None:
+        """File descriptor of the held conducting lock (worker processes close their copy)."""
+        return None if self._lock_handle is None else self._lock_handle.fileno()
+
     def _take_lock(self) -> None:
-        lock_path = self.path.with_name(self.path.name + ".lock")
+        lock_path = lockfile.lock_path(self.path)
         try:
-            lock_path.parent.mkdir(parents=True, exist_ok=True)
-            handle = open(lock_path, "a+")
+            handle, holder = lockfile.acquire(lock_path)
         except OSError as err:
             raise StoreError(
                 f"{self.path} cannot be written: its lock file {lock_path.name} cannot be "
                 f"created ({err.strerror}); is the folder read-only?"
             ) from None
-        try:
-            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            handle.seek(0)
-            holder = handle.read().strip() or "another process"
-            handle.close()
+        if handle is None:
             raise StoreError(
-                f"{self.path} is being written by another 'prunebench conduct' ({holder}); "
-                "wait for it to finish or stop it first"
-            ) from None
-        handle.seek(0)
-        handle.truncate()
-        handle.write(f"pid {os.getpid()}")
-        handle.flush()
+                f"{self.path} is being written by another 'prunebench conduct' "
+                f"({holder}); wait for it to finish or stop it first"
+            )
         self._lock_handle = handle
 
     def _release_lock(self) -> None:
         if self._lock_handle is not None:
-            fcntl.flock(self._lock_handle, fcntl.LOCK_UN)
-            self._lock_handle.close()
+            lockfile.release(self._lock_handle)
             self._lock_handle = None
 
     def _prepare(self) -> None:
@@ -279,23 +331,44 @@ class ResultStore:
             if version == 0:
                 raise StoreError(f"{self.path} is not a prunebench results database")
             return
-        conn.execute("PRAGMA journal_mode=WAL")
         conn.execute("PRAGMA foreign_keys=ON")
         if version == 0:
+            self._wal()
             with conn:
                 conn.executescript(
                     f"BEGIN; {_SCHEMA} PRAGMA user_version = {SCHEMA_VERSION}; COMMIT;"
                 )
             version = SCHEMA_VERSION
         while version < SCHEMA_VERSION:
+            self._wal()
             with conn:
                 conn.executescript(
                     f"BEGIN; {_UPGRADES[version]} PRAGMA user_version = {version + 1}; COMMIT;"
                 )
             version += 1
 
+    def _wal(self) -> None:
+        """Switch to write-ahead logging before the first write (readers go on reading).
+
+        Not at opening: a writer refused before it writes leaves the file untouched.
+        """
+        if not self._in_wal:
+            self.db.conn.execute("PRAGMA journal_mode=WAL")
+            self._in_wal = True
+
     def close(self) -> None:
-        """Close the database and release the conducting lock."""
+        """Close the database and release the conducting lock.
+
+        A writer first folds its write-ahead log back into the file and returns it to
+        rollback-journal mode, so the closed database is one self-contained file that
+        read-only media and read-only openers can use.  If another connection still
+        reads it, the switch waits for the next writer's close.
+        """
+        if self._in_wal:
+            try:
+                self.db.conn.execute("PRAGMA journal_mode=DELETE")
+            except sqlite3.Error:
+                pass  # another connection has it open; WAL is still consistent
         self.db.conn.close()
         self._release_lock()
 
@@ -317,8 +390,6 @@ class ResultStore:
         ----------
         study : Study
         """
-        from . import __version__
-
         now = utc_now()
         try:
             existing = self.db.conn.execute(
@@ -341,6 +412,7 @@ class ResultStore:
                     "name or a new database"
                 )
         try:
+            self._wal()
             with self.db.conn:
                 if existing:
                     self.db.conn.execute(
@@ -396,6 +468,7 @@ class ResultStore:
     def add_trials(self, study, trials) -> None:
         """Record more trials of a registered study as ``pending`` (existing ones are kept)."""
         try:
+            self._wal()
             with self.db.conn:
                 self._insert_trials(study, trials)
         except sqlite3.Error as err:
@@ -426,8 +499,6 @@ class ResultStore:
         import numpy
         import pandas
         import sklearn
-
-        from . import __version__
 
         self.db["environments"].insert(
             {
@@ -460,6 +531,7 @@ class ResultStore:
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
         try:
+            self._wal()
             with self.db.conn:
                 self.db.conn.execute(f"DELETE FROM folds WHERE trial_id IN ({marks})", ids)
                 self.db.conn.execute("DELETE FROM curves WHERE group_id = ?", [result.group_id])
@@ -470,9 +542,8 @@ class ResultStore:
                     f"finished = ?, seconds = ? WHERE trial_id IN ({marks})",
                     [started, finished, result.seconds, *ids],
                 )
-                if os.environ.get(_PAUSE_ENV):
-                    Path(os.environ[_MARKER_ENV]).touch()
-                    time.sleep(float(os.environ[_PAUSE_ENV]))
+                if self.write_hook is not None:
+                    self.write_hook()
         except sqlite3.Error as err:
             raise _explain(self.path, err) from None
 
@@ -481,6 +552,7 @@ class ResultStore:
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
         try:
+            self._wal()
             with self.db.conn:
                 self.db.conn.execute(
                     f"UPDATE trials SET status = 'failed', error = ?, started = ?, finished = ?, "

@@ -6,9 +6,11 @@ Not a test module: pytest puts this folder on ``sys.path``, so tests import it a
 
 from __future__ import annotations
 
+import os
 import sqlite3
 import subprocess
 import time
+from pathlib import Path
 
 
 def stored_rows(path) -> dict:
@@ -16,7 +18,8 @@ def stored_rows(path) -> dict:
     conn = sqlite3.connect(path)
     folds = conn.execute(
         'SELECT trial_id, "repeat", fold, arm, n_train, n_test, test_fingerprint, error, '
-        "accuracy, balanced_accuracy, log_loss, brier, n_leaves, depth, alpha FROM folds "
+        "accuracy, balanced_accuracy, log_loss, brier, mse, mae, r2, n_leaves, depth, alpha "
+        "FROM folds "
         'ORDER BY trial_id, "repeat", fold, arm'
     ).fetchall()
     curves = conn.execute('SELECT * FROM curves ORDER BY group_id, "repeat", fold, candidate')
@@ -42,9 +45,11 @@ def done_trials(path) -> int:
         return -1
 
 
-def start_and_wait(cmd, db, at_least: int, timeout: float = 120) -> subprocess.Popen:
+def start_and_wait(
+    cmd, db, at_least: int, timeout: float = 120, stderr=subprocess.DEVNULL
+) -> subprocess.Popen:
     """Start a command and return it, still running, once ``db`` has ``at_least`` done trials."""
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=stderr)
     deadline = time.monotonic() + timeout
     while time.monotonic() < deadline and proc.poll() is None:
         if done_trials(db) >= at_least:
@@ -52,3 +57,43 @@ def start_and_wait(cmd, db, at_least: int, timeout: float = 120) -> subprocess.P
         time.sleep(0.1)
     assert proc.poll() is None, "the sweep finished before it could be killed"
     return proc
+
+
+def _stat(pid: int) -> list[str] | None:
+    """Fields of /proc/PID/stat after the command name, or None if there is no such process."""
+    try:
+        text = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return None
+    return text.rsplit(")", 1)[1].split()
+
+
+def descendants(pid: int) -> set[int]:
+    """Every living process started by ``pid``, its children's children included."""
+    parents = {}
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            fields = _stat(int(entry))
+            if fields and fields[0] != "Z":
+                parents[int(entry)] = int(fields[1])
+    found, frontier = set(), {pid}
+    while frontier:
+        frontier = {child for child, parent in parents.items() if parent in frontier} - found
+        found |= frontier
+    return found
+
+
+def alive(pid: int) -> bool:
+    """Whether ``pid`` runs (a zombie has ended; only its parent has not collected it)."""
+    fields = _stat(pid)
+    return fields is not None and fields[0] != "Z"
+
+
+def still_running(pids, within: float) -> set[int]:
+    """Poll until none of ``pids`` runs or ``within`` seconds pass; return those left."""
+    deadline = time.monotonic() + within
+    left = {p for p in pids if alive(p)}
+    while left and time.monotonic() < deadline:
+        time.sleep(0.1)
+        left = {p for p in left if alive(p)}
+    return left

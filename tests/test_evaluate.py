@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from sklearn.metrics import brier_score_loss, log_loss, mean_squared_error, r2_score
 
-from prunebench.evaluate import derive_seed, evaluate_group, outer_splits
+from prunebench.evaluate import EvaluationSettings, derive_seed, evaluate_group, outer_splits
 from prunebench.study import parse_study
 
 STUDY = """\
@@ -24,6 +24,14 @@ rule = {rules}
 """
 
 
+def _settings(study, repeats=None, seed=None):
+    return EvaluationSettings(
+        seed=study.seed if seed is None else seed,
+        repeats=study.repeats if repeats is None else repeats,
+        folds=study.folds,
+    )
+
+
 def _study(rules='["min", "1se", "0.5se"]', datasets=None):
     text = STUDY.format(rules=rules)
     if datasets:
@@ -36,8 +44,8 @@ def test_rules_share_every_fit():
     three = _study()
     one = _study('["1se"]')
     data = three.datasets["breast_cancer"]
-    r3 = evaluate_group(three.groups()[0], data, three.seed, three.repeats, three.folds)
-    r1 = evaluate_group(one.groups()[0], data, one.seed, one.repeats, one.folds)
+    r3 = evaluate_group(three.groups()[0], data, _settings(three))
+    r1 = evaluate_group(one.groups()[0], data, _settings(one))
     # per outer fold: T_max, then one tree per inner fold
     assert r1.n_fits == r3.n_fits == 2 * 4 * (1 + 4)
     assert len(r3.folds) == 3 * len(r1.folds) == 3 * 2 * 4 * 2
@@ -55,7 +63,7 @@ def test_configurations_share_outer_test_folds():
     data = study.datasets["breast_cancer"]
     prints = []
     for group in study.groups()[:3]:
-        result = evaluate_group(group, data, study.seed, study.repeats, study.folds)
+        result = evaluate_group(group, data, _settings(study))
         prints.append(
             sorted({(r["repeat"], r["fold"], r["test_fingerprint"]) for r in result.folds})
         )
@@ -66,7 +74,7 @@ def test_configurations_share_outer_test_folds():
 def test_outer_splits_are_stratified_and_cover_every_row_once_per_repeat():
     study = _study()
     data = study.datasets["breast_cancer"]
-    splits = outer_splits(data, study.seed, 3, 5)
+    splits = list(outer_splits(data, EvaluationSettings(study.seed, 3, 5)))
     assert len(splits) == 15
     for r in range(3):
         tests = np.concatenate([test for rep, _, _, test in splits if rep == r])
@@ -75,7 +83,7 @@ def test_outer_splits_are_stratified_and_cover_every_row_once_per_repeat():
     for _, _, _, test in splits:
         assert abs(data.y[test].mean() - share) < 0.02
     # a different study seed gives different folds
-    other = outer_splits(data, study.seed + 1, 3, 5)
+    other = list(outer_splits(data, EvaluationSettings(study.seed + 1, 3, 5)))
     assert not np.array_equal(splits[0][3], other[0][3])
 
 
@@ -84,14 +92,14 @@ def test_metrics_agree_with_sklearn_on_each_fold():
     study = _study('["1se"]', datasets='["wine"]')
     data = study.datasets["wine"]
     group = study.groups()[0]
-    result = evaluate_group(group, data, study.seed, study.repeats, study.folds)
+    result = evaluate_group(group, data, _settings(study))
     for row in result.folds:
         assert row["error"] == pytest.approx(1 - row["accuracy"])
         assert 0 <= row["brier"] <= 2 and row["log_loss"] >= 0
     # recompute one unpruned fold by hand
     from sklearn.tree import DecisionTreeClassifier
 
-    repeat, fold, train, test = outer_splits(data, study.seed, study.repeats, study.folds)[0]
+    repeat, fold, train, test = next(outer_splits(data, _settings(study)))
     tree = DecisionTreeClassifier(
         criterion=group.criterion,
         max_depth=group.max_depth,
@@ -113,11 +121,11 @@ def test_binary_brier_matches_sklearn():
     study = _study('["min"]')
     data = study.datasets["breast_cancer"]
     group = study.groups()[0]
-    result = evaluate_group(group, data, study.seed, 1, study.folds)
+    result = evaluate_group(group, data, _settings(study, repeats=1))
     row = result.folds[0]
     from sklearn.tree import DecisionTreeClassifier
 
-    _, _, train, test = outer_splits(data, study.seed, 1, study.folds)[0]
+    _, _, train, test = next(outer_splits(data, _settings(study, repeats=1)))
     tree = DecisionTreeClassifier(
         criterion=group.criterion,
         random_state=derive_seed(study.seed, data.fingerprint, 0, 0, "tree"),
@@ -142,11 +150,11 @@ rule = ["min"]
 """
     study = parse_study(text)
     data = study.datasets["diabetes"]
-    result = evaluate_group(study.groups()[0], data, study.seed, 1, 3)
+    result = evaluate_group(study.groups()[0], data, EvaluationSettings(study.seed, 1, 3))
     assert {r["arm"] for r in result.folds} == {"unpruned", "pruned"}
     from sklearn.tree import DecisionTreeRegressor
 
-    _, _, train, test = outer_splits(data, study.seed, 1, 3)[0]
+    _, _, train, test = next(outer_splits(data, EvaluationSettings(study.seed, 1, 3)))
     tree = DecisionTreeRegressor(
         min_samples_leaf=5, random_state=derive_seed(study.seed, data.fingerprint, 0, 0, "tree")
     ).fit(data.X[train], data.y[train])
@@ -157,3 +165,44 @@ rule = ["min"]
     pruned = [r for r in result.folds if r["arm"] == "pruned"]
     assert all(r["n_leaves"] < tree.get_n_leaves() for r in pruned)
     assert len(result.curves) > 3 and {c["fold"] for c in result.curves} == {0, 1, 2}
+
+
+def test_outer_splits_come_one_repeat_at_a_time():
+    # a billion repeats must not be built up front (issue 12): the splits are a generator
+    # whose first repeats are those of a short scheme with the same seed
+    study = _study()
+    data = study.datasets["breast_cancer"]
+    huge = outer_splits(data, EvaluationSettings(study.seed, 10**9, 4))
+    assert iter(huge) is huge
+    first = [next(huge) for _ in range(8)]
+    short = list(outer_splits(data, EvaluationSettings(study.seed, 2, 4)))
+    for (r1, f1, tr1, te1), (r2, f2, tr2, te2) in zip(first, short, strict=True):
+        assert (r1, f1) == (r2, f2)
+        assert np.array_equal(tr1, tr2) and np.array_equal(te1, te2)
+
+
+def test_a_billion_repeats_stop_at_the_time_limit_in_bounded_memory(tmp_path):
+    # before the splits were lazy, the outer splits were listed before the first fit:
+    # memory grew without bound and the time limit was never checked
+    import subprocess
+    import sys
+
+    code = (
+        "import resource\n"
+        "from prunebench.evaluate import EvaluationSettings, TrialTimeout, evaluate_group\n"
+        "from prunebench.study import parse_study\n"
+        's = parse_study(\'name = "huge"\\nseed = 1\\ndatasets = ["iris"]\\n'
+        '[factors]\\ninner_folds = [2]\\nrule = ["min"]\\n\')\n'
+        "settings = EvaluationSettings(seed=1, repeats=10**9, folds=5, time_limit=1.0)\n"
+        "try:\n"
+        "    evaluate_group(s.groups()[0], s.datasets['iris'], settings)\n"
+        "except TrialTimeout as err:\n"
+        "    print('stopped:', err)\n"
+        "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, timeout=300, check=True
+    )
+    assert "time_limit of 1 s" in out.stdout
+    peak_mib = int(out.stdout.split()[-1]) / 1024
+    assert peak_mib < 600, peak_mib

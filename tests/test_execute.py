@@ -12,7 +12,7 @@ import pytest
 from click.testing import CliRunner
 from helpers import start_and_wait, stored_rows
 
-import prunebench.execute as execute
+import prunebench.runners as runners
 from prunebench.cli import main
 from prunebench.execute import Progress, conduct
 from prunebench.store import ResultStore, StoreError
@@ -86,14 +86,14 @@ def test_two_workers_give_identical_rows(sweep_file, reference, tmp_path):
 
 def test_a_failing_trial_is_stored_and_the_rest_complete(sweep_file, tmp_path, monkeypatch):
     study = load_study(sweep_file)
-    real = execute.evaluate_group
+    real = runners.evaluate_group
 
     def sometimes_broken(group, *args, **kwargs):
         if group.max_depth == 3 and group.dataset == "wine":
             raise FloatingPointError("injected failure for depth 3")
         return real(group, *args, **kwargs)
 
-    monkeypatch.setattr(execute, "evaluate_group", sometimes_broken)
+    monkeypatch.setattr(runners, "evaluate_group", sometimes_broken)
     db = tmp_path / "fail.sqlite"
     summary = conduct(study, db, progress=Progress(0, io.StringIO()))
     assert summary.failed == 8 and summary.done == 56
@@ -110,7 +110,7 @@ def test_a_failing_trial_is_stored_and_the_rest_complete(sweep_file, tmp_path, m
     conn.close()
 
     # a plain rerun leaves failures alone; --retry-failed runs them again
-    monkeypatch.setattr(execute, "evaluate_group", real)
+    monkeypatch.setattr(runners, "evaluate_group", real)
     again = conduct(study, db, progress=Progress(0, io.StringIO()))
     assert again.done == 0 and again.skipped == 64
     retried = conduct(study, db, retry_failed=True, progress=Progress(0, io.StringIO()))

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import os
 import sqlite3
+import subprocess
+import sys
 
 import pytest
 
-from prunebench.evaluate import evaluate_group
+from prunebench.evaluate import EvaluationSettings, evaluate_group
 from prunebench.store import SCHEMA_VERSION, ResultStore, StoreError
 from prunebench.study import parse_study
 
@@ -31,7 +34,8 @@ def filled(tmp_path):
     with ResultStore(path) as store:
         store.register_study(study)
         for group in study.groups():
-            result = evaluate_group(group, study.datasets["iris"], study.seed, 1, 3)
+            settings = EvaluationSettings(seed=study.seed, repeats=1, folds=3)
+            result = evaluate_group(group, study.datasets["iris"], settings)
             store.save_group(result, group.trials, "t0", "t1")
     return study, path
 
@@ -72,7 +76,6 @@ def test_schema_tables_columns_and_version(filled):
     ):
         assert metric in fold_columns
     assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
-    assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     indexes = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='index'")}
     assert "trials_study_status" in indexes
 
@@ -161,3 +164,105 @@ def test_readonly_store_refuses_writes(filled):
         assert store.integrity() == "ok"
         with pytest.raises(sqlite3.OperationalError):
             store.db.conn.execute("DELETE FROM folds")
+
+
+def test_a_writer_uses_wal_and_leaves_one_self_contained_file(tmp_path):
+    path = tmp_path / "j.sqlite"
+    with ResultStore(path) as store:
+        store.register_study(parse_study(STUDY))
+        assert store.db.conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert path.with_name("j.sqlite-wal").exists()
+    # closed: back in rollback-journal mode, no -wal or -shm beside it
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["j.sqlite"]
+    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "delete"
+    conn.close()
+    # reading creates nothing either
+    with ResultStore(path, readonly=True) as store:
+        assert len(store.statuses(parse_study(STUDY).study_id)) == 4
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["j.sqlite"]
+
+
+def test_write_hook_runs_inside_the_open_transaction(tmp_path):
+    study = parse_study(STUDY)
+    path = tmp_path / "h.sqlite"
+    seen = []
+
+    def look_from_outside():
+        # another connection does not see the group yet: the transaction is still open
+        other = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        seen.append(other.execute("SELECT COUNT(*) FROM folds").fetchone()[0])
+        other.close()
+
+    with ResultStore(path, write_hook=look_from_outside) as store:
+        store.register_study(study)
+        group = study.groups()[0]
+        settings = EvaluationSettings(seed=study.seed, repeats=1, folds=3)
+        store.save_group(
+            evaluate_group(group, study.datasets["iris"], settings), group.trials, "t0", "t1"
+        )
+        assert store.db.conn.execute("SELECT COUNT(*) FROM folds").fetchone()[0] == 12
+    assert seen == [0]
+    with ResultStore(path) as store:  # no hook unless one is given
+        assert store.write_hook is None
+
+
+def test_a_lock_whose_holder_died_is_taken_over(tmp_path):
+    # the holder forks a child that keeps the lock file open (as an orphaned worker did),
+    # then dies: the lock names a dead process and is stale
+    path = tmp_path / "stale.sqlite"
+    child_pid = tmp_path / "child.pid"
+    code = (
+        "import os, sys, time\n"
+        "from prunebench.store import ResultStore\n"
+        f"store = ResultStore({str(path)!r}, lock=True)\n"
+        "pid = os.fork()\n"
+        "if pid == 0:\n"
+        "    time.sleep(120); os._exit(0)\n"
+        f"open({str(child_pid)!r}, 'w').write(str(pid))\n"
+        "os._exit(0)\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True, timeout=120)
+    orphan = int(child_pid.read_text())
+    try:
+        assert "pid" in path.with_name("stale.sqlite.lock").read_text()
+        os.kill(orphan, 0)  # the orphan is alive and still holds the old lock file
+        with ResultStore(path, lock=True):
+            assert f"pid {os.getpid()}" in path.with_name("stale.sqlite.lock").read_text()
+            # a living holder is still respected
+            with pytest.raises(StoreError, match="being written by another"):
+                ResultStore(path, lock=True)
+    finally:
+        os.kill(orphan, 9)
+    # nothing of the takeover is left behind but the lock file and its guard
+    assert sorted(p.name for p in tmp_path.iterdir()) == [
+        "child.pid",
+        "stale.sqlite",
+        "stale.sqlite.lock",
+        "stale.sqlite.lock.takeover",
+    ]
+
+
+def test_a_lock_named_by_a_living_process_is_not_taken(tmp_path):
+    path = tmp_path / "alive.sqlite"
+    holder = subprocess.Popen(
+        [
+            sys.executable,
+            "-c",
+            f"from prunebench.store import ResultStore\nimport sys\n"
+            f"s = ResultStore({str(path)!r}, lock=True)\nprint('held', flush=True)\n"
+            "sys.stdin.read()\n",
+        ],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert holder.stdout.readline().strip() == "held"
+        with pytest.raises(StoreError, match=f"pid {holder.pid}"):
+            ResultStore(path, lock=True)
+    finally:
+        holder.stdin.close()
+        holder.wait(timeout=60)
+    with ResultStore(path, lock=True):  # its holder ended normally: free
+        pass
