@@ -6,7 +6,17 @@ The pruning engine (:mod:`prunebench.pruning`), the CV choice of alpha
 """
 
 from .estimators import PrunedTreeClassifier, PrunedTreeRegressor
-from .exceptions import InvalidParameterError, PrunebenchError
+from .exceptions import (
+    ConductError,
+    DatasetError,
+    InvalidParameterError,
+    PrunebenchError,
+    QueryError,
+    StatsError,
+    StoreError,
+    StudyError,
+    TrialTimeout,
+)
 from .pruning import PRUNE_RISKS, PruningPath, cart_candidates, pruning_path
 from .results import Results, open_results
 from .selection import (
@@ -23,15 +33,22 @@ __version__ = "0.1.0"
 __all__ = [
     "PRUNE_RISKS",
     "AlphaSelection",
+    "ConductError",
+    "DatasetError",
     "InvalidParameterError",
     "MinimumRule",
     "PrunebenchError",
     "PrunedTreeClassifier",
     "PrunedTreeRegressor",
     "PruningPath",
+    "QueryError",
     "Results",
     "SelectionRule",
     "StandardErrorRule",
+    "StatsError",
+    "StoreError",
+    "StudyError",
+    "TrialTimeout",
     "__version__",
     "cart_candidates",
     "open_results",

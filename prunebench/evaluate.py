@@ -24,7 +24,7 @@ from sklearn.model_selection import KFold, RepeatedKFold, RepeatedStratifiedKFol
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 from .datasets import LoadedDataset, is_classification
-from .exceptions import PrunebenchError
+from .exceptions import TrialTimeout
 from .selection import select_alpha
 
 __all__ = [
@@ -132,9 +132,6 @@ def _regression_scores(model, X, y) -> dict:
         "r2": float(r2_score(y, pred)),
     }
 
-
-class TrialTimeout(PrunebenchError):
-    """A trial group ran past the study's ``time_limit``."""
 
 
 def evaluate_group(

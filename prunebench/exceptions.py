@@ -6,7 +6,18 @@ a non-zero exit code; anything else is a bug and keeps its traceback.
 
 from __future__ import annotations
 
-__all__ = ["PrunebenchError", "InvalidParameterError"]
+__all__ = [
+    "ConductError",
+    "DatasetError",
+    "InvalidParameterError",
+    "PrunebenchError",
+    "QueryError",
+    "StatsError",
+    "StoreError",
+    "StudyError",
+    "TrialTimeout",
+    "parameter_error",
+]
 
 
 class PrunebenchError(Exception):
@@ -23,6 +34,46 @@ class InvalidParameterError(PrunebenchError, ValueError):
     """
 
     exit_code = 2
+
+
+class StudyError(PrunebenchError):
+    """A study file cannot be used as written."""
+
+    exit_code = 2
+
+
+class DatasetError(PrunebenchError):
+    """A data set is unknown, or its data cannot be used."""
+
+    exit_code = 2
+
+
+class StoreError(PrunebenchError):
+    """The results database cannot be used as asked."""
+
+    exit_code = 1
+
+
+class StatsError(PrunebenchError):
+    """The stored results cannot answer the question asked."""
+
+    exit_code = 2
+
+
+class QueryError(PrunebenchError):
+    """A query was refused or failed."""
+
+    exit_code = 2
+
+
+class ConductError(PrunebenchError):
+    """A study cannot be conducted as asked."""
+
+    exit_code = 2
+
+
+class TrialTimeout(PrunebenchError):
+    """A trial group ran past the study's ``time_limit``."""
 
 
 def parameter_error(name: str, owner: str, expected: str, got: object) -> InvalidParameterError:

@@ -20,17 +20,12 @@ from typing import TextIO
 
 from .datasets import load_dataset, register_manifest
 from .evaluate import GroupResult, evaluate_group
-from .exceptions import PrunebenchError
+from .exceptions import ConductError
 from .store import ResultStore, utc_now
 from .study import Study, TrialGroup
 
 __all__ = ["ConductSummary", "GroupRunner", "Progress", "conduct", "default_database", "plan"]
 
-
-class ConductError(PrunebenchError):
-    """A study cannot be conducted as asked."""
-
-    exit_code = 2
 
 
 def default_database(study: Study) -> Path:

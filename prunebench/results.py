@@ -15,7 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from . import stats
-from .exceptions import PrunebenchError
+from .exceptions import QueryError
 from .store import ResultStore, StoreError
 
 __all__ = ["QueryError", "Results", "export_tables", "open_results", "progress_report", "run_query"]
@@ -23,11 +23,6 @@ __all__ = ["QueryError", "Results", "export_tables", "open_results", "progress_r
 TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
 VIEWS = ("arm_summary", "fold_differences")
 
-
-class QueryError(PrunebenchError):
-    """A query was refused or failed."""
-
-    exit_code = 2
 
 
 class Results:

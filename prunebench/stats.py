@@ -25,7 +25,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from .exceptions import PrunebenchError
+from .exceptions import StatsError
 from .store import ResultStore
 
 __all__ = [
@@ -94,11 +94,6 @@ COMPARISON_COLUMNS = [
     "n_folds",
 ]
 
-
-class StatsError(PrunebenchError):
-    """The stored results cannot answer the question asked."""
-
-    exit_code = 2
 
 
 def default_metric(task: str) -> str:

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import sqlite_utils
 
-from .exceptions import PrunebenchError
+from .exceptions import StoreError
 
 __all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "utc_now"]
 
@@ -147,11 +147,6 @@ WHERE p.arm = 'pruned';
 # schema version n -> SQL that brings a version-n file to n + 1
 _UPGRADES: dict[int, str] = {}
 
-
-class StoreError(PrunebenchError):
-    """The results database cannot be used as asked."""
-
-    exit_code = 1
 
 
 def _explain(path: Path, err: sqlite3.Error) -> StoreError:

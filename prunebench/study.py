@@ -48,7 +48,7 @@ from .datasets import (
     load_dataset,
     register_manifest,
 )
-from .exceptions import PrunebenchError
+from .exceptions import StudyError
 from .selection import parse_rule
 
 __all__ = [
@@ -94,11 +94,6 @@ _SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
 _SPACE_KEYS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "se", "prune_risk")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,79}$")
 
-
-class StudyError(PrunebenchError):
-    """A study file cannot be used as written."""
-
-    exit_code = 2
 
 
 @dataclass(frozen=True)
