@@ -26,6 +26,7 @@ from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 from .datasets import LoadedDataset, is_classification
 from .exceptions import TrialTimeout
 from .selection import select_alpha
+from .vocabulary import CLASSIFICATION, REGRESSION, metric_names
 
 __all__ = [
     "CLASSIFICATION_METRICS",
@@ -37,8 +38,8 @@ __all__ = [
     "outer_splits",
 ]
 
-CLASSIFICATION_METRICS = ("error", "accuracy", "balanced_accuracy", "log_loss", "brier")
-REGRESSION_METRICS = ("mse", "mae", "r2")
+CLASSIFICATION_METRICS = tuple(metric_names(CLASSIFICATION))
+REGRESSION_METRICS = tuple(metric_names(REGRESSION))
 # probabilities are clipped so one confident mistake gives a large, finite log loss
 _PROBA_CLIP = 1e-15
 

@@ -87,6 +87,8 @@ class Factor:
     changes_tree : bool
         Whether the factor changes the grown tree ``T_max`` (trials that differ only
         in factors that do not can share tree fits).
+    noun : str
+        What one level is called in messages ("a leaf size", "a pruning risk").
     levels : dict or None
         Family -> allowed levels, for ``"choice"`` factors.
     least : int
@@ -97,8 +99,13 @@ class Factor:
     kind: str
     default: Mapping[str, object]
     changes_tree: bool
+    noun: str
     levels: Mapping[str, tuple[str, ...]] | None = None
     least: int = 1
+
+
+def _every_family(level: object) -> dict:
+    return {CLASSIFICATION: level, REGRESSION: level}
 
 
 #: the factors of a study, in the order of a configuration
@@ -110,17 +117,19 @@ FACTORS: dict[str, Factor] = {
             "choice",
             {CLASSIFICATION: "gini", REGRESSION: "squared_error"},
             True,
+            "criterion",
             CRITERIA,
         ),
-        Factor("max_depth", "depth", {CLASSIFICATION: "none", REGRESSION: "none"}, True),
-        Factor("min_samples_leaf", "int", {CLASSIFICATION: 1, REGRESSION: 1}, True, least=1),
-        Factor("inner_folds", "int", {CLASSIFICATION: 10, REGRESSION: 10}, False, least=2),
-        Factor("rule", "rule", {CLASSIFICATION: "1se", REGRESSION: "1se"}, False),
+        Factor("max_depth", "depth", _every_family("none"), True, "depth"),
+        Factor("min_samples_leaf", "int", _every_family(1), True, "leaf size", least=1),
+        Factor("inner_folds", "int", _every_family(10), False, "fold count", least=2),
+        Factor("rule", "rule", _every_family("1se"), False, "rule"),
         Factor(
             "prune_risk",
             "choice",
             {CLASSIFICATION: "error", REGRESSION: "squared_error"},
             False,
+            "pruning risk",
             PRUNE_RISKS,
         ),
     )

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from prunebench import plots, stats
+from prunebench import plots, results, stats
 from prunebench.cli import main
 from prunebench.store import ResultStore
 
@@ -15,7 +15,7 @@ from prunebench.store import ResultStore
 @pytest.fixture(scope="module")
 def data(small_db):
     with ResultStore(small_db, readonly=True) as store:
-        folds = stats.load_folds(store)
+        folds = results.load_folds(store)
         curves = plots.example_curves(store, folds)
     return folds, curves
 

@@ -12,7 +12,7 @@ import pytest
 from click.testing import CliRunner
 from scipy import stats as sps
 
-from prunebench import stats
+from prunebench import results, stats
 from prunebench.cli import main
 from prunebench.execute import Progress, conduct
 from prunebench.store import ResultStore
@@ -48,7 +48,7 @@ def db(tmp_path_factory):
 @pytest.fixture(scope="module")
 def folds(db):
     with ResultStore(db, readonly=True) as store:
-        return stats.load_folds(store)
+        return results.load_folds(store)
 
 
 # ---- the corrected resampled t ---------------------------------------------------------
@@ -359,7 +359,7 @@ def test_several_studies_need_a_name(db, tmp_path):
 def test_arm_means_match_a_hand_aggregation(db):
     with ResultStore(db, readonly=True) as store:
         study_id = store.query("SELECT study_id FROM studies")[0]["study_id"]
-        table = stats.arm_means(store, study_id)
+        table = results.arm_means(store, study_id)
     conn = sqlite3.connect(db)
     assert len(table) == 4 * 2 * 2
     for row in table.itertuples():
