@@ -20,6 +20,7 @@ import click
 
 from . import __version__
 from .exceptions import PrunebenchError
+from .vocabulary import CLASSIFICATION, DEFAULT_METRIC, REGRESSION, metric_names
 
 #: keyword parameters of the library -> the options that set them here
 FLAGS = {
@@ -67,8 +68,9 @@ _study_option = click.option(
 _metric_option = click.option(
     "--metric",
     default=None,
-    help="error, accuracy, balanced_accuracy, log_loss, brier (classification) or "
-    "mse, mae, r2 (regression). Default: error / mse.",
+    help=f"{', '.join(metric_names(CLASSIFICATION))} (classification) or "
+    f"{', '.join(metric_names(REGRESSION))} (regression). Default: "
+    f"{DEFAULT_METRIC[CLASSIFICATION]} / {DEFAULT_METRIC[REGRESSION]}.",
 )
 _alpha_option = click.option("--alpha", default=0.05, show_default=True, help="Significance level.")
 _json_option = click.option("--json", "as_json", is_flag=True, help="Print JSON.")

@@ -337,7 +337,7 @@ def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> Figure:
     Parameters
     ----------
     ranked : dict
-        One family's result of :func:`prunebench.stats.ranking`.
+        One family's result of :func:`prunebench.ranks.ranking`.
     max_configs : int, default=15
         The best configurations shown (the rest are named in the title count).
     """

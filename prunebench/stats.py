@@ -86,16 +86,12 @@ COMPARISON_COLUMNS = [
 
 
 def __getattr__(name: str):
-    # names that moved: the vocabulary holds factors and metrics, prunebench.ranks the
-    # ranking; computed on access so an added metric or factor shows here too
+    # names that moved to the vocabulary, computed on access so that an added metric or
+    # factor shows here too; the ranking moved to prunebench.ranks
     if name == "CONFIG":
         return factor_names()
     if name == "HIGHER_IS_BETTER":
         return {m.name for m in METRICS.values() if m.higher_is_better}
-    if name in ("ROPE", "ranking", "recommendation"):
-        from . import ranks
-
-        return getattr(ranks, name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 

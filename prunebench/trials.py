@@ -66,6 +66,21 @@ class TrialGroup:
     prune_risk: str
     trials: tuple[Trial, ...]
 
+    @classmethod
+    def of(cls, trials: list[Trial]) -> TrialGroup:
+        """The group of trials that share every tree fit (the first one's levels)."""
+        t = trials[0]
+        return cls(
+            group_id=t.group_id,
+            dataset=t.dataset,
+            criterion=t.criterion,
+            max_depth=t.max_depth,
+            min_samples_leaf=t.min_samples_leaf,
+            inner_folds=t.inner_folds,
+            prune_risk=t.prune_risk,
+            trials=tuple(trials),
+        )
+
     @property
     def rules(self) -> list[str]:
         """The rules of the group's trials."""
@@ -176,38 +191,14 @@ class Study:
             ``inner_folds``, ``rule``, ``prune_risk``.
         """
         trial = _make_trial(self, dataset, levels)
-        return TrialGroup(
-            group_id=trial.group_id,
-            dataset=dataset,
-            criterion=trial.criterion,
-            max_depth=trial.max_depth,
-            min_samples_leaf=trial.min_samples_leaf,
-            inner_folds=trial.inner_folds,
-            prune_risk=trial.prune_risk,
-            trials=(trial,),
-        )
+        return TrialGroup.of([trial])
 
     def groups(self) -> list[TrialGroup]:
         """The trials grouped by shared tree fits, in a fixed order."""
         groups: dict[str, list[Trial]] = {}
         for trial in self.trials():
             groups.setdefault(trial.group_id, []).append(trial)
-        out = []
-        for gid, trials in groups.items():
-            t = trials[0]
-            out.append(
-                TrialGroup(
-                    group_id=gid,
-                    dataset=t.dataset,
-                    criterion=t.criterion,
-                    max_depth=t.max_depth,
-                    min_samples_leaf=t.min_samples_leaf,
-                    inner_folds=t.inner_folds,
-                    prune_risk=t.prune_risk,
-                    trials=tuple(trials),
-                )
-            )
-        return out
+        return [TrialGroup.of(trials) for trials in groups.values()]
 
     def task_of(self, dataset: str) -> str:
         """``"classification"`` or ``"regression"`` for a data set of the study."""

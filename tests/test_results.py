@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import sqlite3
 import subprocess
@@ -13,9 +14,12 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
-from prunebench import open_results
+from prunebench import open_results, results
 from prunebench.cli import main
+from prunebench.execute import Progress, conduct
 from prunebench.results import TABLES, VIEWS, progress_report
+from prunebench.store import ResultStore
+from prunebench.study import parse_study
 
 
 def _digest(path):
@@ -151,3 +155,37 @@ def test_progress_reads_while_conduct_writes(tmp_path):
     assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
     text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
     assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text
+
+
+def test_several_studies_need_a_name(mixed_db, tmp_path):
+    import shutil
+
+    copy = tmp_path / "two.sqlite"
+    shutil.copy(mixed_db, copy)
+    other = parse_study(
+        'name = "other-unit"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\n'
+        "folds = 3\n[factors]\ninner_folds = [3]\n"
+    )
+    conduct(other, copy, progress=Progress(0, io.StringIO()))
+    result = CliRunner().invoke(main, ["compare", "--db", str(copy)])
+    assert result.exit_code == 2 and "pick one with --study" in result.output
+    named = CliRunner().invoke(
+        main, ["compare", "--db", str(copy), "--study", "other-unit", "--json"]
+    )
+    assert {r["dataset"] for r in json.loads(named.output)} == {"iris"}
+
+
+def test_arm_means_match_a_hand_aggregation(mixed_db):
+    with ResultStore(mixed_db, readonly=True) as store:
+        study_id = store.query("SELECT study_id FROM studies")[0]["study_id"]
+        table = results.arm_means(store, study_id)
+    conn = sqlite3.connect(mixed_db)
+    assert len(table) == 4 * 2 * 2
+    for row in table.itertuples():
+        metric = "mse" if row.dataset == "diabetes" else "error"
+        expected = conn.execute(
+            f"SELECT AVG(f.{metric}) FROM folds f JOIN trials t USING (trial_id) "
+            "JOIN datasets d USING (dataset_id) WHERE d.name=? AND t.rule=? AND f.arm=?",
+            (row.dataset, row.rule, row.arm),
+        ).fetchone()[0]
+        assert row.value == pytest.approx(expected)
