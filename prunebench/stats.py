@@ -356,6 +356,53 @@ def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, 
 # ---- the comparison table --------------------------------------------------------------
 
 
+def _paired_means(folds: pd.DataFrame, metric: str | None) -> pd.DataFrame:
+    """Per trial: means and variances of both arms, of their per-fold difference and of leaves."""
+    folds, tasks = metric_rows(folds, metric)
+    folds = folds.assign(metric=folds["task"].map(tasks))
+    folds["value"] = np.nan
+    for task, m in tasks.items():
+        rows = folds["task"] == task
+        folds.loc[rows, "value"] = folds.loc[rows, m]
+    pruned = folds[folds["arm"] == "pruned"]
+    unpruned = folds[folds["arm"] == "unpruned"][
+        ["trial_id", "repeat", "fold", "value", "n_leaves"]
+    ]
+    both = pruned.merge(unpruned, on=["trial_id", "repeat", "fold"], suffixes=("", "_u"))
+    both["d"] = both["value"] - both["value_u"]
+    both["saved"] = both["n_leaves_u"] - both["n_leaves"]
+    both["ratio"] = both["n_test"] / both["n_train"]
+    agg = both.groupby("trial_id", sort=False).agg(
+        mean_pruned=("value", "mean"),
+        var_pruned=("value", "var"),
+        mean_unpruned=("value_u", "mean"),
+        var_unpruned=("value_u", "var"),
+        diff=("d", "mean"),
+        var_diff=("d", "var"),
+        n_folds=("d", "size"),
+        ratio=("ratio", "mean"),
+        leaves_pruned=("n_leaves", "mean"),
+        leaves_unpruned=("n_leaves_u", "mean"),
+        leaves_saved=("saved", "mean"),
+        var_saved=("saved", "var"),
+    )
+    meta = pruned.drop_duplicates("trial_id").set_index("trial_id")[
+        ["dataset", "task", *factor_names(), "metric"]
+    ]
+    return meta.join(agg)
+
+
+def _verdicts(table: pd.DataFrame) -> np.ndarray:
+    """Which arm the corrected interval of the difference favours, in the metric's direction."""
+    lower_better = ~table["metric"].map(higher_is_better).astype(bool)
+    below, above = table["ci_high"] < 0, table["ci_low"] > 0
+    return np.select(
+        [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
+        ["pruned better", "pruned better", "unpruned better", "unpruned better"],
+        "no evidence either way",
+    )
+
+
 def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05) -> pd.DataFrame:
     """Pruned against unpruned, per data set and configuration.
 
@@ -377,39 +424,7 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         arms' corrected CIs, ``leaves_pruned``, ``leaves_unpruned``, ``leaves_saved``
         with its corrected CI, and ``n_folds``.
     """
-    folds, tasks = metric_rows(folds, metric)
-    folds = folds.assign(metric=folds["task"].map(tasks))
-    folds["value"] = np.nan
-    for task, m in tasks.items():
-        rows = folds["task"] == task
-        folds.loc[rows, "value"] = folds.loc[rows, m]
-    pruned = folds[folds["arm"] == "pruned"]
-    unpruned = folds[folds["arm"] == "unpruned"][
-        ["trial_id", "repeat", "fold", "value", "n_leaves"]
-    ]
-    both = pruned.merge(unpruned, on=["trial_id", "repeat", "fold"], suffixes=("", "_u"))
-    both["d"] = both["value"] - both["value_u"]
-    both["saved"] = both["n_leaves_u"] - both["n_leaves"]
-    both["ratio"] = both["n_test"] / both["n_train"]
-    g = both.groupby("trial_id", sort=False)
-    agg = g.agg(
-        mean_pruned=("value", "mean"),
-        var_pruned=("value", "var"),
-        mean_unpruned=("value_u", "mean"),
-        var_unpruned=("value_u", "var"),
-        diff=("d", "mean"),
-        var_diff=("d", "var"),
-        n_folds=("d", "size"),
-        ratio=("ratio", "mean"),
-        leaves_pruned=("n_leaves", "mean"),
-        leaves_unpruned=("n_leaves_u", "mean"),
-        leaves_saved=("saved", "mean"),
-        var_saved=("saved", "var"),
-    )
-    meta = pruned.drop_duplicates("trial_id").set_index("trial_id")[
-        ["dataset", "task", *factor_names(), "metric"]
-    ]
-    table = meta.join(agg)
+    table = _paired_means(folds, metric)
     n, ratio = table["n_folds"], table["ratio"]
     diff = _corrected(table["diff"], table["var_diff"], n, ratio, alpha)
     for k in ("ci_low", "ci_high", "p_value", "naive_ci_low", "naive_ci_high", "naive_p_value"):
@@ -419,13 +434,7 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         table[f"{arm}_ci_low"], table[f"{arm}_ci_high"] = r["ci_low"], r["ci_high"]
     saved = _corrected(table["leaves_saved"], table["var_saved"], n, ratio, alpha)
     table["leaves_saved_ci_low"], table["leaves_saved_ci_high"] = saved["ci_low"], saved["ci_high"]
-    lower_better = ~table["metric"].map(higher_is_better).astype(bool)
-    below, above = table["ci_high"] < 0, table["ci_low"] > 0
-    table["verdict"] = np.select(
-        [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
-        ["pruned better", "pruned better", "unpruned better", "unpruned better"],
-        "no evidence either way",
-    )
+    table["verdict"] = _verdicts(table)
     table = table.sort_values(["dataset", *factor_names()], na_position="last")
     table = table.reset_index(drop=True)
     table["max_depth"] = table["max_depth"].astype("Int64")

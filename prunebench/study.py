@@ -232,7 +232,16 @@ def _search(check: _Checker, doc: object, seed: int) -> SearchSpec:
     search_seed = doc.get("seed", seed)
     if not _is_int(search_seed) or search_seed < 0:
         raise check.fail("search.seed", "must be an integer >= 0")
-    raw = doc.get("space")
+    space = _search_space(check, doc.get("space"))
+    if sampler == "grid" and any(v[0] != "choices" for v in space.values()):
+        raise check.fail(
+            "search.sampler", "the grid sampler needs every space entry as a list of choices"
+        )
+    return SearchSpec(sampler, n, early, search_seed, space)
+
+
+def _search_space(check: _Checker, raw: object) -> dict:
+    """``[search.space]``: name -> ("choices", levels) or a numeric range."""
     if not isinstance(raw, dict) or not raw:
         raise check.fail("search.space", "needs a table of choices or ranges")
     space = {}
@@ -243,34 +252,28 @@ def _search(check: _Checker, doc: object, seed: int) -> SearchSpec:
         if isinstance(value, list):
             space[name] = ("choices", _levels(check, key, value))
         elif isinstance(value, dict):
-            if set(value) - {"low", "high", "log"} or not {"low", "high"} <= set(value):
-                raise check.fail(
-                    key, "a range is { low = ..., high = ... } with optional log = true"
-                )
-            low, high = value["low"], value["high"]
-            if name == "se":
-                if (
-                    not all(
-                        isinstance(v, (int, float)) and not isinstance(v, bool) for v in (low, high)
-                    )
-                    or not 0 <= low < high
-                ):
-                    raise check.fail(key, "needs numbers 0 <= low < high")
-                space[name] = ("float", float(low), float(high))
-            elif name in ("max_depth", "min_samples_leaf", "inner_folds"):
-                least = 2 if name == "inner_folds" else 1
-                if not (_is_int(low) and _is_int(high) and least <= low < high):
-                    raise check.fail(key, f"needs integers {least} <= low < high")
-                space[name] = ("int", low, high, bool(value.get("log", False)))
-            else:
-                raise check.fail(key, "takes a list of choices, not a range")
+            space[name] = _search_range(check, key, name, value)
         else:
             raise check.fail(key, "must be a list of choices or a { low, high } range")
-    if sampler == "grid" and any(v[0] != "choices" for v in space.values()):
-        raise check.fail(
-            "search.sampler", "the grid sampler needs every space entry as a list of choices"
-        )
-    return SearchSpec(sampler, n, early, search_seed, space)
+    return space
+
+
+def _search_range(check: _Checker, key: str, name: str, value: dict) -> tuple:
+    """One ``{ low, high, log }`` range of the search space."""
+    if set(value) - {"low", "high", "log"} or not {"low", "high"} <= set(value):
+        raise check.fail(key, "a range is { low = ..., high = ... } with optional log = true")
+    low, high = value["low"], value["high"]
+    if name == "se":
+        numbers = all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (low, high))
+        if not numbers or not 0 <= low < high:
+            raise check.fail(key, "needs numbers 0 <= low < high")
+        return ("float", float(low), float(high))
+    if name in ("max_depth", "min_samples_leaf", "inner_folds"):
+        least = _FACTOR_SPECS[name].least
+        if not (_is_int(low) and _is_int(high) and least <= low < high):
+            raise check.fail(key, f"needs integers {least} <= low < high")
+        return ("int", low, high, bool(value.get("log", False)))
+    raise check.fail(key, "takes a list of choices, not a range")
 
 
 def _check_space(check: _Checker, search: SearchSpec, task: str) -> None:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import textwrap
 
 from .snippets import CAUTION, estimator_block, study_fragment
-from .vocabulary import config_label, higher_is_better
+from .vocabulary import REGRESSION, config_label, family_of, higher_is_better
 
 __all__ = [
     "compare_text",
@@ -176,7 +176,7 @@ def progress_text(report: dict) -> str:
 
 def demo_text(dataset: str, data, model, cv: int) -> str:
     """The CV curve of a fitted pruned tree and the alpha its rule chose."""
-    loss = "MSE" if data.task == "regression" else "error rate"
+    loss = "MSE" if family_of(data.task) == REGRESSION else "error rate"
     lines = [
         f"{dataset}: {len(data.y)} rows, {data.X.shape[1]} features; grown with "
         f"criterion={model.criterion}, pruned by {model.prune_risk}, {cv}-fold CV",
@@ -288,7 +288,7 @@ def rank_text(results: list[dict], alpha: float, rope: float) -> str:
     for res in results:
         lines += _rank_heading(res, alpha)
         lines += [_rank_row(r) for _, r in res["table"].iterrows()]
-        relative = " relative" if res["family"] == "regression" else ""
+        relative = " relative" if res["family"] == REGRESSION else ""
         lines.append(
             _wrap(
                 "ok = not significantly worse than the best (Nemenyi). W/T/L: datasets where "
