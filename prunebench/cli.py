@@ -20,7 +20,14 @@ import click
 
 from . import __version__
 from .exceptions import PrunebenchError
-from .vocabulary import CLASSIFICATION, DEFAULT_METRIC, REGRESSION, metric_names
+from .vocabulary import (
+    CLASSIFICATION,
+    DEFAULT_METRIC,
+    FACTORS,
+    PRUNE_RISKS,
+    REGRESSION,
+    metric_names,
+)
 
 #: keyword parameters of the library -> the options that set them here
 FLAGS = {
@@ -31,6 +38,11 @@ FLAGS = {
     "fmt": "--format",
     "out": "--out",
 }
+
+
+def _per_family(levels: dict) -> str:
+    """``"gini / squared_error"``: a family's default, classification first."""
+    return f"{levels[CLASSIFICATION]} / {levels[REGRESSION]}"
 
 
 def _as_flags(message: str) -> str:
@@ -69,8 +81,8 @@ _metric_option = click.option(
     "--metric",
     default=None,
     help=f"{', '.join(metric_names(CLASSIFICATION))} (classification) or "
-    f"{', '.join(metric_names(REGRESSION))} (regression). Default: "
-    f"{DEFAULT_METRIC[CLASSIFICATION]} / {DEFAULT_METRIC[REGRESSION]}.",
+    f"{', '.join(metric_names(REGRESSION))} (regression). "
+    f"Default: {_per_family(DEFAULT_METRIC)}.",
 )
 _alpha_option = click.option("--alpha", default=0.05, show_default=True, help="Significance level.")
 _json_option = click.option("--json", "as_json", is_flag=True, help="Print JSON.")
@@ -130,13 +142,16 @@ def main() -> None:
     help="Any data set of 'prunebench datasets'.",
 )
 @click.option(
-    "--criterion", default=None, help="Growing criterion (default: gini / squared_error)."
+    "--criterion",
+    default=None,
+    help=f"Growing criterion (default: {_per_family(FACTORS['criterion'].default)}).",
 )
 @click.option(
     "--prune-risk",
     default=None,
-    help="Pruning risk: error or impurity (classification), squared_error or impurity "
-    "(regression). Default: error / squared_error.",
+    help=f"Pruning risk: {' or '.join(PRUNE_RISKS[CLASSIFICATION])} (classification), "
+    f"{' or '.join(PRUNE_RISKS[REGRESSION])} (regression). "
+    f"Default: {_per_family(FACTORS['prune_risk'].default)}.",
 )
 @click.option("--cv", default=10, show_default=True, help="Folds for choosing alpha.")
 @click.option(

@@ -35,6 +35,7 @@ __all__ = [
     "growth_factors",
     "higher_is_better",
     "metric_names",
+    "prune_risk_names",
 ]
 
 # ---- task families ---------------------------------------------------------------------
@@ -66,6 +67,11 @@ PRUNE_RISKS: dict[str, tuple[str, ...]] = {
     CLASSIFICATION: ("error", "impurity"),
     REGRESSION: ("squared_error", "impurity"),
 }
+
+
+def prune_risk_names() -> tuple[str, ...]:
+    """Every pruning risk of any family, each once, classification's first."""
+    return tuple(dict.fromkeys(r for family in FAMILIES for r in PRUNE_RISKS[family]))
 
 
 # ---- factors ---------------------------------------------------------------------------

@@ -77,6 +77,12 @@ def test_defaults_are_what_a_study_without_factors_sweeps():
     assert study.factors[REGRESSION]["prune_risk"] == ["squared_error"]
 
 
+def test_prune_risk_names_are_the_pruning_engines():
+    from prunebench.pruning import PRUNE_RISKS
+
+    assert vocabulary.prune_risk_names() == PRUNE_RISKS
+
+
 def test_growth_factors_are_those_that_change_the_tree():
     assert growth_factors() == ["criterion", "max_depth", "min_samples_leaf"]
 
