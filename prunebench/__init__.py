@@ -27,6 +27,7 @@ from .selection import (
     parse_rule,
     select_alpha,
 )
+from .vocabulary import Configuration
 
 __version__ = "0.1.0"
 
@@ -34,6 +35,7 @@ __all__ = [
     "PRUNE_RISKS",
     "AlphaSelection",
     "ConductError",
+    "Configuration",
     "DatasetError",
     "InvalidParameterError",
     "MinimumRule",
