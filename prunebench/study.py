@@ -1,4 +1,4 @@
-"""Study files: parse, validate, and expand into trials and trial groups.
+"""Study files: parse and validate them into a :class:`~prunebench.trials.Study`.
 
 A study file is TOML::
 
