@@ -12,7 +12,17 @@ from __future__ import annotations
 import importlib
 
 from ._version import __version__
-from .exceptions import InvalidParameterError, PrunebenchError
+from .exceptions import (
+    ConductError,
+    DatasetError,
+    InvalidParameterError,
+    PrunebenchError,
+    QueryError,
+    StatsError,
+    StoreError,
+    StudyError,
+    TrialTimeout,
+)
 
 # public name -> the module that defines it, imported when the name is first asked for
 _LAZY = {
@@ -30,20 +40,29 @@ _LAZY = {
     "StandardErrorRule": "selection",
     "parse_rule": "selection",
     "select_alpha": "selection",
+    "Configuration": "vocabulary",
 }
 
 __all__ = [
     "PRUNE_RISKS",
     "AlphaSelection",
+    "ConductError",
+    "Configuration",
+    "DatasetError",
     "InvalidParameterError",
     "MinimumRule",
     "PrunebenchError",
     "PrunedTreeClassifier",
     "PrunedTreeRegressor",
     "PruningPath",
+    "QueryError",
     "Results",
     "SelectionRule",
     "StandardErrorRule",
+    "StatsError",
+    "StoreError",
+    "StudyError",
+    "TrialTimeout",
     "__version__",
     "cart_candidates",
     "open_results",

@@ -25,8 +25,9 @@ from sklearn.model_selection import KFold, RepeatedKFold, RepeatedStratifiedKFol
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 from .datasets import LoadedDataset, is_classification
-from .exceptions import PrunebenchError
+from .exceptions import TrialTimeout
 from .selection import select_alpha
+from .vocabulary import CLASSIFICATION, REGRESSION, metric_names
 
 __all__ = [
     "CLASSIFICATION_METRICS",
@@ -39,8 +40,8 @@ __all__ = [
     "outer_splits",
 ]
 
-CLASSIFICATION_METRICS = ("error", "accuracy", "balanced_accuracy", "log_loss", "brier")
-REGRESSION_METRICS = ("mse", "mae", "r2")
+CLASSIFICATION_METRICS = tuple(metric_names(CLASSIFICATION))
+REGRESSION_METRICS = tuple(metric_names(REGRESSION))
 # probabilities are clipped so one confident mistake gives a large, finite log loss
 _PROBA_CLIP = 1e-15
 
@@ -171,9 +172,6 @@ def _regression_scores(model, X, y) -> dict:
         "r2": float(r2_score(y, pred)),
     }
 
-
-class TrialTimeout(PrunebenchError):
-    """A trial group ran past the study's ``time_limit``."""
 
 
 class _Clock:

@@ -7,11 +7,19 @@ a non-zero exit code; anything else is a bug and keeps its traceback.
 from __future__ import annotations
 
 __all__ = [
+    "ConductError",
     "ConductStopped",
+    "DatasetError",
     "InvalidParameterError",
     "PrunebenchError",
+    "QueryError",
     "RunnerError",
+    "StatsError",
+    "StoreError",
+    "StudyError",
+    "TrialTimeout",
     "WorkerLost",
+    "parameter_error",
 ]
 
 
@@ -29,6 +37,46 @@ class InvalidParameterError(PrunebenchError, ValueError):
     """
 
     exit_code = 2
+
+
+class StudyError(PrunebenchError):
+    """A study file cannot be used as written."""
+
+    exit_code = 2
+
+
+class DatasetError(PrunebenchError):
+    """A data set is unknown, or its data cannot be used."""
+
+    exit_code = 2
+
+
+class StoreError(PrunebenchError):
+    """The results database cannot be used as asked."""
+
+    exit_code = 1
+
+
+class StatsError(PrunebenchError):
+    """The stored results cannot answer the question asked."""
+
+    exit_code = 2
+
+
+class QueryError(PrunebenchError):
+    """A query was refused or failed."""
+
+    exit_code = 2
+
+
+class ConductError(PrunebenchError):
+    """A study cannot be conducted as asked."""
+
+    exit_code = 2
+
+
+class TrialTimeout(PrunebenchError):
+    """A trial group ran past the study's ``time_limit``."""
 
 
 def parameter_error(name: str, owner: str, expected: str, got: object) -> InvalidParameterError:

@@ -24,7 +24,8 @@ from pathlib import Path
 from typing import TextIO
 
 from .evaluate import EvaluationSettings
-from .exceptions import ConductStopped, PrunebenchError, WorkerLost
+from .exceptions import ConductError, ConductStopped, WorkerLost
+from .results import duration_text
 from .runners import GroupTask, Outcome, make_runner
 from .store import ResultStore
 from .study import Study, TrialGroup
@@ -40,11 +41,6 @@ __all__ = [
     "usable_workers",
 ]
 
-
-class ConductError(PrunebenchError):
-    """A study cannot be conducted as asked."""
-
-    exit_code = 2
 
 
 def default_database(study: Study) -> Path:
@@ -110,11 +106,11 @@ class Progress:
         rate = finished / elapsed * 60 if elapsed > 0 else 0.0
         remaining = self.total - finished
         eta = remaining / (finished / elapsed) if finished and elapsed > 0 else float("nan")
-        eta_text = "?" if eta != eta else _duration(eta)
+        eta_text = "?" if eta != eta else duration_text(eta)
         failed = f", {self.failed} failed" if self.failed else ""
         return (
             f"trials {finished}/{self.total}{failed} | {rate:.1f} trials/min | "
-            f"elapsed {_duration(elapsed)} | ETA {eta_text}"
+            f"elapsed {duration_text(elapsed)} | ETA {eta_text}"
         )
 
     def update(self, done: int = 0, failed: int = 0) -> None:
@@ -141,13 +137,6 @@ class Progress:
         if self._tty:
             self.stream.write("\n")
             self.stream.flush()
-
-
-def _duration(seconds: float) -> str:
-    seconds = int(round(seconds))
-    h, rest = divmod(seconds, 3600)
-    m, s = divmod(rest, 60)
-    return f"{h}h{m:02d}m" if h else f"{m}m{s:02d}s"
 
 
 def plan(study: Study) -> list[dict]:

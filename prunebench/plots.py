@@ -10,23 +10,23 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import matplotlib
 import matplotlib.ticker
+import numpy as np
+import pandas as pd
+import seaborn as sns
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-import seaborn as sns  # noqa: E402
-
-from .selection import MinimumRule, StandardErrorRule  # noqa: E402
-from .stats import (  # noqa: E402
-    HIGHER_IS_BETTER,
-    comparison,
-    config_label,
+from .ranks import ranking
+from .results import trial_curves
+from .selection import MinimumRule, StandardErrorRule
+from .stats import comparison
+from .vocabulary import (
+    CLASSIFICATION,
+    Configuration,
     default_metric,
-    ranking,
+    family_of,
+    higher_is_better,
 )
 
 __all__ = [
@@ -46,28 +46,30 @@ _ARM_COLOURS = {"unpruned": "#8c6d31", "pruned": "#1f6f8b"}
 MAX_CONFIGS = 8
 
 
-def _family(task: str) -> str:
-    return "regression" if task == "regression" else "classification"
+def _figure(**kwargs) -> Figure:
+    """A figure drawn by its own Agg canvas: no pyplot state, no global backend switch."""
+    fig = Figure(**kwargs)
+    FigureCanvasAgg(fig)
+    return fig
 
 
 def _main_family(folds: pd.DataFrame) -> tuple[pd.DataFrame, str]:
     """The classification rows if there are any, else the regression rows; and its metric."""
-    fam = folds["task"].map(_family)
-    family = "classification" if (fam == "classification").any() else "regression"
-    rows = folds[fam == family]
-    return rows, default_metric("regression" if family == "regression" else "binary")
+    families = folds["task"].map(family_of)
+    family = CLASSIFICATION if (families == CLASSIFICATION).any() else families.iloc[0]
+    return folds[families == family], default_metric(family)
 
 
 def _main_ranking(folds: pd.DataFrame) -> dict:
     """The ranking of the main task family (see :func:`_main_family`)."""
     rows, _ = _main_family(folds)
-    family = _family(rows["task"].iloc[0])
+    family = family_of(rows["task"].iloc[0])
     return next(r for r in ranking(rows) if r["family"] == family)
 
 
 def _top_configs(
     folds: pd.DataFrame, n: int = MAX_CONFIGS, ranked: dict | None = None
-) -> list[tuple]:
+) -> list[Configuration]:
     """The n best pruned configurations of the main task family by mean rank."""
     table = (ranked or _main_ranking(folds))["table"]
     pruned = table[table["rule"] != "unpruned"]
@@ -92,7 +94,7 @@ def _log_alpha(alpha: np.ndarray, floor: float) -> np.ndarray:
     return np.where(alpha > 0, alpha, floor)
 
 
-def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> plt.Figure:
+def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> Figure:
     """Inner-CV curve against alpha: one outer fold, and the average over outer folds.
 
     Parameters
@@ -127,7 +129,8 @@ def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> plt.Figure:
             ]
         )
     averaged = np.mean(averaged, axis=0)
-    fig, axes = plt.subplots(1, 2, figsize=(12, 4.6), sharey=True, layout="constrained")
+    fig = _figure(figsize=(12, 4.6), layout="constrained")
+    axes = fig.subplots(1, 2, sharey=True)
     panels = [
         (
             axes[0],
@@ -171,15 +174,15 @@ def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> plt.Figure:
     return fig
 
 
-def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> plt.Figure:
+def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> Figure:
     """Mean pruned − unpruned per data set with corrected 95% CIs, one colour per configuration.
 
     Parameters
     ----------
     table : DataFrame
         From :func:`prunebench.stats.comparison` (one metric).
-    configs : list of tuple
-        The configurations to show (each a :data:`~prunebench.stats.CONFIG` tuple).
+    configs : list of Configuration
+        The configurations to show.
 
     Returns
     -------
@@ -188,20 +191,14 @@ def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> plt.Figu
         are not; the verdict is written at the right.
     """
     metric = table["metric"].iloc[0]
-    table = table.assign(
-        config=[
-            tuple(None if pd.isna(v) else v for v in r)
-            for r in table[
-                ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
-            ].itertuples(index=False)
-        ]
-    )
+    table = table.assign(config=[Configuration.of(r) for _, r in table.iterrows()])
     table = table[table["config"].isin(configs)]
     datasets = sorted(table["dataset"].unique())
     colours = sns.color_palette(_PALETTE, len(configs))
-    fig, ax = plt.subplots(
+    fig = _figure(
         figsize=(12, 1.6 + 0.75 * len(datasets) + 0.2 * len(configs)), layout="constrained"
     )
+    ax = fig.subplots()
     offsets = np.linspace(-0.3, 0.3, len(configs)) if len(configs) > 1 else [0.0]
     for config, colour, off in zip(configs, colours, offsets, strict=True):
         rows = table[table["config"] == config].set_index("dataset")
@@ -219,7 +216,7 @@ def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> plt.Figu
                 ms=6,
                 color=colour,
                 markerfacecolor=colour if significant else "white",
-                label=config_label(config) if i == 0 else None,
+                label=config.label() if i == 0 else None,
             )
     ax.axvline(0, color="black", lw=1)
     for i, dataset in enumerate(datasets):
@@ -232,7 +229,7 @@ def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> plt.Figu
         ax.text(1.01, i, text, transform=ax.get_yaxis_transform(), va="center", fontsize=8)
     ax.set_yticks(range(len(datasets)), datasets)
     ax.invert_yaxis()
-    better = "right" if metric in HIGHER_IS_BETTER else "left"
+    better = "right" if higher_is_better(metric) else "left"
     ax.set_xlabel(
         f"pruned − unpruned {metric} (mean over outer folds; pruning better to the {better} of 0)"
     )
@@ -248,7 +245,7 @@ def difference_by_dataset(table: pd.DataFrame, configs: list[tuple]) -> plt.Figu
     return fig
 
 
-def size_against_error(folds: pd.DataFrame, metric: str | None = None) -> plt.Figure:
+def size_against_error(folds: pd.DataFrame, metric: str | None = None) -> Figure:
     """Mean tree size against mean test loss, both arms, one panel per data set.
 
     Each point is one configuration's arm, averaged over outer folds.
@@ -261,9 +258,8 @@ def size_against_error(folds: pd.DataFrame, metric: str | None = None) -> plt.Fi
     datasets = sorted(means["dataset"].unique())
     cols = min(3, len(datasets))
     nrows = int(np.ceil(len(datasets) / cols))
-    fig, axes = plt.subplots(
-        nrows, cols, figsize=(4.2 * cols, 3.4 * nrows), squeeze=False, layout="constrained"
-    )
+    fig = _figure(figsize=(4.2 * cols, 3.4 * nrows), layout="constrained")
+    axes = fig.subplots(nrows, cols, squeeze=False)
     for ax, dataset in zip(axes.flat, datasets, strict=False):
         part = means[means["dataset"] == dataset]
         for arm, colour in _ARM_COLOURS.items():
@@ -296,7 +292,7 @@ def size_against_error(folds: pd.DataFrame, metric: str | None = None) -> plt.Fi
     return fig
 
 
-def factor_heatmaps(table: pd.DataFrame) -> plt.Figure:
+def factor_heatmaps(table: pd.DataFrame) -> Figure:
     """Mean pruned − unpruned difference over criterion × depth limit and rule × inner folds.
 
     Parameters
@@ -312,7 +308,8 @@ def factor_heatmaps(table: pd.DataFrame) -> plt.Figure:
         ("criterion", "depth", "criterion × depth limit"),
         ("rule", "inner_folds", "rule × inner folds"),
     ]
-    fig, axes = plt.subplots(1, 2, figsize=(11, 4.2), layout="constrained")
+    fig = _figure(figsize=(11, 4.2), layout="constrained")
+    axes = fig.subplots(1, 2)
     span = np.nanmax(np.abs(table["diff"].to_numpy())) or 1.0
     for ax, (rows, cols, title) in zip(axes, pairs, strict=True):
         grid = table.pivot_table(index=rows, columns=cols, values="diff", aggfunc="mean")
@@ -334,13 +331,13 @@ def factor_heatmaps(table: pd.DataFrame) -> plt.Figure:
     return fig
 
 
-def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> plt.Figure:
+def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> Figure:
     """Average ranks on an axis; bars join configurations within the critical difference.
 
     Parameters
     ----------
     ranked : dict
-        One family's result of :func:`prunebench.stats.ranking`.
+        One family's result of :func:`prunebench.ranks.ranking`.
     max_configs : int, default=15
         The best configurations shown (the rest are named in the title count).
     """
@@ -348,7 +345,8 @@ def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> plt.Figu
     cd = ranked["cd"]
     ranks = table["mean_rank"].to_numpy()
     k_all = len(ranked["table"])
-    fig, ax = plt.subplots(figsize=(11, 1.6 + 0.32 * len(table)), layout="constrained")
+    fig = _figure(figsize=(11, 1.6 + 0.32 * len(table)), layout="constrained")
+    ax = fig.subplots()
     lo, hi = 1, max(k_all, 2)
     ax.set_xlim(lo - 0.5, hi + 0.5)
     ax.set_ylim(len(table) + 1, -1.5)
@@ -364,7 +362,7 @@ def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> plt.Figu
         ax.text(
             hi + 0.4,
             y,
-            f"{config_label(table['config'][i])}  ({rank:.2f})",
+            f"{table['config'][i].label()}  ({rank:.2f})",
             va="center",
             fontsize=8,
         )
@@ -391,14 +389,15 @@ def critical_difference_diagram(ranked: dict, max_configs: int = 15) -> plt.Figu
     return fig
 
 
-def alpha_by_rule(folds: pd.DataFrame) -> plt.Figure:
+def alpha_by_rule(folds: pd.DataFrame) -> Figure:
     """Distributions of the chosen alpha and of the pruned tree size, by rule."""
     pruned = folds[folds["arm"] == "pruned"].copy()
     rules = sorted(pruned["rule"].unique())
     positive = pruned.loc[pruned["alpha"] > 0, "alpha"]
     floor = positive.min() / 3 if len(positive) else 1e-4
     pruned["alpha_plot"] = np.where(pruned["alpha"] > 0, pruned["alpha"], floor)
-    fig, axes = plt.subplots(1, 2, figsize=(11, 4.2), layout="constrained")
+    fig = _figure(figsize=(11, 4.2), layout="constrained")
+    axes = fig.subplots(1, 2)
     palette = dict(zip(rules, sns.color_palette(_PALETTE, len(rules)), strict=True))
     panels = [
         ("alpha_plot", "chosen alpha (log scale; 0 drawn at the bottom)", "Chosen alpha"),
@@ -439,13 +438,13 @@ FIGURES = {
 
 def build_figures(
     folds: pd.DataFrame, curves: pd.DataFrame, ranked: dict | None = None
-) -> dict[str, plt.Figure]:
+) -> dict[str, Figure]:
     """Every summary figure of a study.
 
     Parameters
     ----------
     folds : DataFrame
-        From :func:`prunebench.stats.load_folds`.
+        From :func:`prunebench.results.load_folds`.
     curves : DataFrame
         The ``curves`` rows of one trial group, with a ``context`` attribute for the title.
     ranked : dict, optional
@@ -470,33 +469,57 @@ def build_figures(
     }
 
 
-def example_curves(store, folds: pd.DataFrame, ranked: dict | None = None) -> pd.DataFrame:
-    """The curves of the best pruned configuration on the first data set."""
+def example_trial(folds: pd.DataFrame, ranked: dict | None = None) -> tuple[str, str]:
+    """The trial whose curves the figures show: the best pruned configuration, first data set.
+
+    Returns
+    -------
+    (str, str)
+        Its ``trial_id``, and the title context (data set and configuration).
+    """
     config = _top_configs(folds, 1, ranked)[0]
     rows, _ = _main_family(folds)
     dataset = sorted(rows["dataset"].unique())[0]
     match = rows[(rows["dataset"] == dataset) & (rows["arm"] == "pruned")]
-    for col, value in zip(
-        ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"],
-        config,
-        strict=True,
-    ):
-        match = match[match[col].isna()] if value is None else match[match[col] == value]
-    trial = match["trial_id"].iloc[0]
-    group = store.query("SELECT group_id FROM trials WHERE trial_id = ?", [trial])[0]["group_id"]
-    curves = pd.DataFrame(
-        store.query(
-            'SELECT "repeat", fold, alpha, n_leaves, mean, se FROM curves WHERE group_id = ? '
-            'ORDER BY "repeat", fold, candidate',
-            [group],
-        )
-    )
-    curves.attrs["context"] = f"{dataset}, {config_label(config)}"
+    for name, value in config.levels().items():
+        match = match[match[name].isna()] if value is None else match[match[name] == value]
+    return match["trial_id"].iloc[0], f"{dataset}, {config.label()}"
+
+
+def example_curves(store, folds: pd.DataFrame, ranked: dict | None = None) -> pd.DataFrame:
+    """The curves of :func:`example_trial`, read through :mod:`prunebench.results`.
+
+    Parameters
+    ----------
+    store : ResultStore
+        The results database, open for reading.
+    folds : DataFrame
+        From :func:`prunebench.results.load_folds`.
+    ranked : dict, optional
+        The main family's ranking, when the caller has it already.
+
+    Returns
+    -------
+    DataFrame
+        The curves, with the title context in ``attrs["context"]``.
+    """
+    trial_id, context = example_trial(folds, ranked)
+    curves = trial_curves(store, trial_id)
+    curves.attrs["context"] = context
     return curves
 
 
 def write_figures(store, folds: pd.DataFrame, out: str | Path) -> list[Path]:
     """Draw every figure and save each as PNG and SVG in ``out``.
+
+    Parameters
+    ----------
+    store : ResultStore
+        The results database, open for reading (for the example curves).
+    folds : DataFrame
+        From :func:`prunebench.results.load_folds`.
+    out : str or Path
+        The folder (created if missing).
 
     Returns
     -------
@@ -512,5 +535,4 @@ def write_figures(store, folds: pd.DataFrame, out: str | Path) -> list[Path]:
             path = out / f"{name}.{ext}"
             fig.savefig(path, dpi=110 if ext == "png" else None)
             written.append(path)
-        plt.close(fig)
     return written

@@ -37,6 +37,7 @@ from sklearn.tree._tree import Tree
 from sklearn.utils.validation import check_is_fitted
 
 from .exceptions import parameter_error
+from .vocabulary import prune_risk_names
 
 __all__ = [
     "PRUNE_RISKS",
@@ -48,7 +49,7 @@ __all__ = [
 ]
 
 #: The pruning risks R(t) a path can be computed under.
-PRUNE_RISKS = ("error", "impurity", "squared_error")
+PRUNE_RISKS = prune_risk_names()
 
 _LEAF = -1
 # Alphas closer than this (relative) are one alpha: tied weakest links computed

@@ -11,15 +11,17 @@ import html
 import io
 from pathlib import Path
 
-import matplotlib.pyplot as plt
 import pandas as pd
 
-from . import __version__
+from ._version import __version__
 from .plots import FIGURES, build_figures, example_curves
-from .stats import comparison, config_label, load_folds, recommendation
+from .ranks import recommendation
+from .results import load_folds, study_overview
+from .stats import comparison
 from .store import ResultStore, utc_now
+from .vocabulary import config_label
 
-__all__ = ["CAUTION", "build_report", "write_report"]
+__all__ = ["CAUTION", "build_report", "render_report", "report_inputs", "write_report"]
 
 CAUTION = (
     "A default chosen on benchmark data is a starting point. Validate it on your own data, and "
@@ -72,8 +74,36 @@ def _table(frame: pd.DataFrame, left: tuple = ()) -> str:
 def _png(fig) -> str:
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=100)
-    plt.close(fig)
     return base64.b64encode(buffer.getvalue()).decode()
+
+
+def report_inputs(store: ResultStore, study: str | None = None) -> dict:
+    """Everything a report shows, read through :mod:`prunebench.results` and computed.
+
+    Parameters
+    ----------
+    store : ResultStore
+        The results database, open for reading.
+    study : str, optional
+        Study name, when the database holds several.
+
+    Returns
+    -------
+    dict
+        :func:`prunebench.results.study_overview`'s entries, plus ``recommendations``,
+        ``comparison`` and ``figures`` (name -> Figure).
+    """
+    overview = study_overview(store, study)
+    folds = load_folds(store, overview["info"]["name"])
+    recs = recommendation(folds)
+    main_family = recs[0]["ranking"]  # classification first, as the figures show it
+    figures = build_figures(folds, example_curves(store, folds, main_family), main_family)
+    return {
+        **overview,
+        "recommendations": recs,
+        "comparison": comparison(folds),
+        "figures": figures,
+    }
 
 
 def build_report(store: ResultStore, study: str | None = None) -> str:
@@ -89,148 +119,137 @@ def build_report(store: ResultStore, study: str | None = None) -> str:
     -------
     str
     """
-    folds = load_folds(store, study)
-    info = store.query(
-        "SELECT * FROM studies WHERE name = ?"
-        if study
-        else "SELECT * FROM studies ORDER BY created LIMIT 1",
-        [study] if study else [],
-    )[0]
-    sid = info["study_id"]
-    counts = store.query(
-        "SELECT status, COUNT(*) AS n FROM trials WHERE study_id = ? GROUP BY status", [sid]
-    )
-    counts = {c["status"]: c["n"] for c in counts}
-    datasets = pd.DataFrame(
-        store.query(
-            "SELECT DISTINCT d.name, d.task, d.rows, d.features, d.classes, d.source, d.licence "
-            "FROM datasets d JOIN trials t USING (dataset_id) WHERE t.study_id = ? ORDER BY d.name",
-            [sid],
-        )
-    )
-    env = pd.DataFrame(
-        store.query(
-            "SELECT recorded, python, numpy, scikit_learn, pandas, prunebench, platform "
-            "FROM environments WHERE study_id = ? ORDER BY recorded DESC LIMIT 5",
-            [sid],
-        )
-    )
-    failed = store.query(
-        "SELECT t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.rule, t.error "
-        "FROM trials t JOIN datasets d USING (dataset_id) WHERE t.study_id = ? AND "
-        "t.status = 'failed'",
-        [sid],
-    )
-    recs = recommendation(folds)
-    table = comparison(folds)
-    main_family = recs[0]["ranking"]  # classification first, as the figures show it
-    figures = build_figures(folds, example_curves(store, folds, main_family), main_family)
+    return render_report(report_inputs(store, study))
 
+
+def render_report(inputs: dict) -> str:
+    """The HTML of a report from :func:`report_inputs` (no reading, no statistics)."""
+    info, recs = inputs["info"], inputs["recommendations"]
     parts = [
+        _opening(info, inputs["counts"]),
+        "<h2>Recommended default</h2>",
+        *map(_recommended, recs),
+        "<h2>Configurations ranked across datasets</h2>",
+        *map(_ranked, recs),
+        "<h2>Figures</h2>",
+        *(_figure(name, fig) for name, fig in inputs["figures"].items()),
+        _comparison(inputs["comparison"]),
+        "<h2>Datasets</h2>"
+        + _table(inputs["datasets"], left=("name", "task", "source", "licence")),
+        _failed(inputs["failed"]),
+        "<h2>Study file</h2><pre>" + html.escape(info["study_text"]) + "</pre>",
+        "<h2>Environment</h2>"
+        + _table(inputs["environments"], left=tuple(inputs["environments"].columns)),
+        "</main></body></html>",
+    ]
+    return "".join(parts)
+
+
+def _opening(info: dict, counts: dict) -> str:
+    return (
         f'<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
         f"<title>prunebench report: {html.escape(info['name'])}</title>"
         f"<style>{_STYLE}</style></head><body>"
-    ]
-    parts.append(
         f"<header><h1>Study {html.escape(info['name'])}</h1>"
         f"<div>{html.escape(info['description'])}</div></header><main>"
-    )
-    parts.append(f'<p class="caution"><b>Caution.</b> {html.escape(CAUTION)}</p>')
-    parts.append(
+        f'<p class="caution"><b>Caution.</b> {html.escape(CAUTION)}</p>'
         f"<p>Seed {info['seed']}; outer CV {info['outer_repeats']} repeats × "
         f"{info['outer_folds']} folds; trials done {counts.get('done', 0)}, failed "
         f"{counts.get('failed', 0)}, pending {counts.get('pending', 0)}. Report made "
         f"{utc_now()} by prunebench {__version__}.</p>"
     )
 
-    parts.append("<h2>Recommended default</h2>")
-    for r in recs:
-        regret = r["regret"].rename(columns={"regret": f"regret ({r['metric']})"})
-        parts.append(
-            f"<h3>{r['family']}: {html.escape(config_label(r['config']))}</h3>"
-            f"<p>Mean rank {r['mean_rank']:.2f} of {len(r['ranking']['table'])} configurations on "
-            f"{len(r['ranking']['datasets'])} datasets; {r['mean_leaves']:.1f} leaves on average; "
-            f"regret mean {r['mean_regret']:.4g}, worst {r['worst_regret']:.4g} "
-            f"({r['metric']} above the best configuration on each dataset, corrected 95% CI).</p>"
-            + _table(regret, left=("dataset", "best"))
-        )
-    parts.append("<h2>Configurations ranked across datasets</h2>")
-    for r in recs:
-        ranked = r["ranking"]
-        f = ranked["friedman"]
-        test = (
-            f"Friedman χ² = {f['chi2']:.2f} (p = {f['p_chi2']:.3g}), Iman–Davenport F = "
-            f"{f['ff']:.2f} (p = {f['p_ff']:.3g}), Nemenyi critical difference "
-            f"{ranked['cd']:.2f}."
-            if f
-            else "Fewer than two datasets: no test across them."
-        )
-        view = ranked["table"].head(20)[
-            [
-                "label",
-                "mean_rank",
-                "wins",
-                "ties",
-                "losses",
-                "mean_metric",
-                "mean_leaves",
-                "not_worse",
-            ]
-        ]
-        view = view.rename(
-            columns={
-                "label": "configuration",
-                "mean_metric": f"mean {ranked['metric']}",
-                "not_worse": "not worse than best",
-            }
-        )
-        parts.append(
-            f"<h3>{r['family']} (metric {ranked['metric']})</h3><p>{test}</p>"
-            + _table(view, left=("configuration",))
-        )
-    parts.append("<h2>Figures</h2>")
-    for name, fig in figures.items():
-        parts.append(
-            f'<figure><img alt="{html.escape(FIGURES[name])}" '
-            f'src="data:image/png;base64,{_png(fig)}"><figcaption>'
-            f"{html.escape(FIGURES[name])}</figcaption></figure>"
-        )
-    parts.append(
+
+def _recommended(r: dict) -> str:
+    regret = r["regret"].rename(columns={"regret": f"regret ({r['metric']})"})
+    return (
+        f"<h3>{r['family']}: {html.escape(config_label(r['config']))}</h3>"
+        f"<p>Mean rank {r['mean_rank']:.2f} of {len(r['ranking']['table'])} configurations on "
+        f"{len(r['ranking']['datasets'])} datasets; {r['mean_leaves']:.1f} leaves on average; "
+        f"regret mean {r['mean_regret']:.4g}, worst {r['worst_regret']:.4g} "
+        f"({r['metric']} above the best configuration on each dataset, corrected 95% CI).</p>"
+        + _table(regret, left=("dataset", "best"))
+    )
+
+
+_RANK_COLUMNS = [
+    "label",
+    "mean_rank",
+    "wins",
+    "ties",
+    "losses",
+    "mean_metric",
+    "mean_leaves",
+    "not_worse",
+]
+
+
+def _ranked(r: dict) -> str:
+    ranked = r["ranking"]
+    f = ranked["friedman"]
+    test = (
+        f"Friedman χ² = {f['chi2']:.2f} (p = {f['p_chi2']:.3g}), Iman–Davenport F = "
+        f"{f['ff']:.2f} (p = {f['p_ff']:.3g}), Nemenyi critical difference "
+        f"{ranked['cd']:.2f}."
+        if f
+        else "Fewer than two datasets: no test across them."
+    )
+    view = ranked["table"].head(20)[_RANK_COLUMNS].rename(
+        columns={
+            "label": "configuration",
+            "mean_metric": f"mean {ranked['metric']}",
+            "not_worse": "not worse than best",
+        }
+    )
+    return (
+        f"<h3>{r['family']} (metric {ranked['metric']})</h3><p>{test}</p>"
+        + _table(view, left=("configuration",))
+    )
+
+
+def _figure(name: str, fig) -> str:
+    return (
+        f'<figure><img alt="{html.escape(FIGURES[name])}" '
+        f'src="data:image/png;base64,{_png(fig)}"><figcaption>'
+        f"{html.escape(FIGURES[name])}</figcaption></figure>"
+    )
+
+
+# the report's table leaves out the per-arm intervals; the CSV export has every column
+_NOT_SHOWN = (
+    "pruned_ci",
+    "unpruned_ci",
+    "leaves_saved_ci",
+    "leaves_pruned",
+    "leaves_unpruned",
+    "naive_p_value",
+    "task",
+    "n_folds",
+)
+
+
+def _comparison(table: pd.DataFrame) -> str:
+    view = table[[c for c in table.columns if not c.startswith(_NOT_SHOWN)]]
+    return (
         "<h2>Pruned against unpruned, per dataset and configuration</h2>"
         "<p>diff = pruned − unpruned; CI by corrected resampled t (Nadeau &amp; Bengio "
         "2003); the naive CI treats folds as independent and is too narrow.</p>"
-    )
-    # the report's table leaves out the per-arm intervals; the CSV export has every column
-    shown = (
-        "pruned_ci",
-        "unpruned_ci",
-        "leaves_saved_ci",
-        "leaves_pruned",
-        "leaves_unpruned",
-        "naive_p_value",
-        "task",
-        "n_folds",
-    )
-    view = table[[c for c in table.columns if not c.startswith(shown)]]
-    parts.append(
         '<div class="scroll">'
         + _table(view, left=("dataset", "criterion", "rule", "prune_risk", "metric", "verdict"))
         + "</div>"
     )
-    parts.append("<h2>Datasets</h2>" + _table(datasets, left=("name", "task", "source", "licence")))
-    parts.append(f"<h2>Failed trials ({len(failed)})</h2>")
-    if failed:
-        for f in failed:
-            parts.append(
-                f"<details><summary>{html.escape(f['dataset'])} {html.escape(f['criterion'])}"
-                f" depth {f['max_depth']} {html.escape(f['rule'])}</summary><pre>"
-                f"{html.escape(f['error'] or '')}</pre></details>"
-            )
-    else:
+
+
+def _failed(failed: list[dict]) -> str:
+    parts = [f"<h2>Failed trials ({len(failed)})</h2>"]
+    for f in failed:
+        parts.append(
+            f"<details><summary>{html.escape(f['dataset'])} {html.escape(f['criterion'])}"
+            f" depth {f['max_depth']} {html.escape(f['rule'])}</summary><pre>"
+            f"{html.escape(f['error'] or '')}</pre></details>"
+        )
+    if not failed:
         parts.append("<p>None.</p>")
-    parts.append("<h2>Study file</h2><pre>" + html.escape(info["study_text"]) + "</pre>")
-    parts.append("<h2>Environment</h2>" + _table(env, left=tuple(env.columns)))
-    parts.append("</main></body></html>")
     return "".join(parts)
 
 

@@ -1,8 +1,15 @@
-"""Reading results: pandas for notebooks, read-only SQL, tidy exports, progress.
+"""The one reader of a results database: DataFrames out, one policy for which study.
 
-:func:`open_results` is the notebook entry point; :func:`run_query` backs
-``prunebench sql`` and refuses anything that writes; :func:`export_tables` backs
-``prunebench export``; :func:`progress_report` backs ``prunebench progress``.
+Every read of a results database goes through this module: :func:`resolve_study`
+says which study a question is about (the database's only study, or the one
+named; several without a name is an error listing them, for every command alike),
+:func:`load_folds` reads the finished folds with one SQL query straight into
+pandas, and the small readers below serve the conduct summary, the figures, the
+report and the search.  :func:`open_results` is the notebook entry point;
+:func:`run_query` backs ``prunebench sql`` and refuses anything that writes;
+:func:`export_tables` backs ``prunebench export``; :func:`progress_report` backs
+``prunebench progress``.  Statistics, figures and the report receive the frames
+and never open the database themselves.
 """
 
 from __future__ import annotations
@@ -14,20 +21,260 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import stats
-from .exceptions import PrunebenchError
-from .store import ResultStore, StoreError, connect_readonly
+from .exceptions import QueryError, parameter_error
+from .store import ResultStore, connect_readonly
+from .vocabulary import (
+    CLASSIFICATION,
+    DEFAULT_METRIC,
+    REGRESSION,
+    default_metric,
+    factor_names,
+    metric_names,
+)
 
-__all__ = ["QueryError", "Results", "export_tables", "open_results", "progress_report", "run_query"]
+__all__ = [
+    "QueryError",
+    "Results",
+    "arm_means",
+    "conduct_table",
+    "duration_text",
+    "export_tables",
+    "load_folds",
+    "open_results",
+    "progress_report",
+    "pruned_losses",
+    "resolve_study",
+    "run_query",
+    "study_overview",
+    "trial_curves",
+]
 
 TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
 VIEWS = ("arm_summary", "fold_differences")
 
 
-class QueryError(PrunebenchError):
-    """A query was refused or failed."""
+# ---- which study -----------------------------------------------------------------------
 
-    exit_code = 2
+
+def resolve_study(store: ResultStore, study: str | None = None) -> dict:
+    """The ``studies`` row a question is about.
+
+    Parameters
+    ----------
+    store : ResultStore
+    study : str, optional
+        A study name; may be left out when the database holds one study.
+
+    Returns
+    -------
+    dict
+        The study's row of the ``studies`` table.
+
+    Raises
+    ------
+    QueryError
+        No study yet; several and none named (the message lists them); or no study of
+        that name (the message lists the names there are).
+    """
+    rows = store.query("SELECT * FROM studies ORDER BY created")
+    if not rows:
+        raise QueryError(f"{store.path} holds no study yet")
+    names = ", ".join(r["name"] for r in rows)
+    if study is None:
+        if len(rows) > 1:
+            raise QueryError(
+                f"{store.path} holds several studies ({names}); pick one with study=..."
+            )
+        return rows[0]
+    for row in rows:
+        if row["name"] == study:
+            return row
+    raise QueryError(f"{store.path} has no study named {study!r}; it holds {names}")
+
+
+# ---- the folds every statistic starts from -----------------------------------------------
+
+
+def _folds_sql() -> str:
+    factors = ", ".join(f"t.{f}" for f in factor_names())
+    metrics = ", ".join(f"f.{m}" for m in metric_names())
+    return (
+        f"SELECT d.name AS dataset, d.task, t.trial_id, {factors}, "
+        f'f."repeat", f.fold, f.arm, f.n_train, f.n_test, {metrics}, '
+        "f.n_leaves, f.depth, f.alpha "
+        "FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id) "
+        "WHERE t.study_id = ? AND t.status = 'done'"
+    )
+
+
+def load_folds(store: ResultStore, study: str | None = None) -> pd.DataFrame:
+    """Every fold row of a study's finished trials, with dataset, task and factor columns.
+
+    One SQL read straight into pandas.
+
+    Parameters
+    ----------
+    store : ResultStore
+    study : str, optional
+        Study name; required when the database holds more than one (see
+        :func:`resolve_study`).
+
+    Returns
+    -------
+    DataFrame
+        One row per trial, outer fold and arm; ``max_depth`` is a nullable integer
+        (missing = unlimited).
+    """
+    study_id = resolve_study(store, study)["study_id"]
+    frame = pd.read_sql_query(_folds_sql(), store.db.conn, params=[study_id])
+    if frame.empty:
+        raise QueryError(f"{store.path}: the study has no finished trials yet")
+    frame["max_depth"] = frame["max_depth"].astype("Int64")
+    return frame
+
+
+def arm_means(store: ResultStore, study_id: str) -> pd.DataFrame:
+    """Mean default-metric value and leaves per data set, rule and arm.
+
+    Parameters
+    ----------
+    store : ResultStore
+    study_id : str
+
+    Returns
+    -------
+    DataFrame
+        Columns ``dataset``, ``task``, ``rule``, ``arm``, ``metric`` (the family's default
+        metric: ``error`` for classification, ``mse`` for regression), ``value`` (its mean
+        over trials and outer folds), ``n_leaves`` (mean leaves) and ``n_trials``.
+    """
+    default = (
+        f"CASE WHEN d.task = '{REGRESSION}' THEN f.{DEFAULT_METRIC[REGRESSION]} "
+        f"ELSE f.{DEFAULT_METRIC[CLASSIFICATION]} END"
+    )
+    frame = pd.read_sql_query(
+        f"""
+        SELECT d.name AS dataset, d.task, t.rule, f.arm, AVG({default}) AS value,
+               AVG(f.n_leaves) AS n_leaves, COUNT(DISTINCT t.trial_id) AS n_trials
+        FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
+        WHERE t.study_id = ? AND t.status = 'done'
+        GROUP BY d.name, d.task, t.rule, f.arm
+        ORDER BY d.name, t.rule, f.arm DESC
+        """,
+        store.db.conn,
+        params=[study_id],
+    )
+    frame.insert(4, "metric", frame["task"].map(default_metric).astype(object))
+    return frame
+
+
+def conduct_table(path: str | Path, study_id: str) -> pd.DataFrame:
+    """The short table a conduct ends with: one row per data set, rule and metric.
+
+    Returns
+    -------
+    DataFrame
+        Index ``dataset``, ``rule``, ``metric``; columns ``unpruned``, ``pruned`` (mean
+        metric), ``leaves_unpruned`` and ``leaves_pruned``; empty when nothing finished.
+    """
+    with ResultStore(path, readonly=True) as store:
+        table = arm_means(store, study_id)
+    if table.empty:
+        return pd.DataFrame(columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned"])
+    wide = table.pivot_table(
+        index=["dataset", "rule", "metric"], columns="arm", values=["value", "n_leaves"]
+    )
+    return pd.DataFrame(
+        {
+            "unpruned": wide[("value", "unpruned")],
+            "pruned": wide[("value", "pruned")],
+            "leaves_unpruned": wide[("n_leaves", "unpruned")],
+            "leaves_pruned": wide[("n_leaves", "pruned")],
+        }
+    )
+
+
+# ---- small readers for the figures, the report and the search ---------------------------
+
+
+def trial_curves(store: ResultStore, trial_id: str) -> pd.DataFrame:
+    """The inner-CV curves of a trial's group, every outer fold, in candidate order."""
+    return pd.read_sql_query(
+        'SELECT c."repeat", c.fold, c.alpha, c.n_leaves, c.mean, c.se FROM curves c '
+        "JOIN trials t ON t.group_id = c.group_id WHERE t.trial_id = ? "
+        'ORDER BY c."repeat", c.fold, c.candidate',
+        store.db.conn,
+        params=[trial_id],
+    )
+
+
+def pruned_losses(store: ResultStore, trial_id: str) -> tuple[str, pd.DataFrame]:
+    """A finished trial's data set and its pruned arm's default loss per outer fold.
+
+    Returns
+    -------
+    (str, DataFrame)
+        The data set's study key, and columns ``loss``, ``n_train``, ``n_test``.
+    """
+    row = store.query(
+        "SELECT d.name AS dataset, d.task FROM trials t JOIN datasets d USING (dataset_id) "
+        "WHERE t.trial_id = ?",
+        [trial_id],
+    )[0]
+    folds = pd.read_sql_query(
+        f"SELECT {default_metric(row['task'])} AS loss, n_train, n_test FROM folds "
+        "WHERE trial_id = ? AND arm = 'pruned'",
+        store.db.conn,
+        params=[trial_id],
+    )
+    return row["dataset"], folds
+
+
+def study_overview(store: ResultStore, study: str | None = None) -> dict:
+    """What a report says about a study besides its statistics.
+
+    Returns
+    -------
+    dict
+        ``info`` (the ``studies`` row), ``counts`` (status -> trials), ``datasets``,
+        ``environments`` (the latest five, DataFrames) and ``failed`` (rows as dicts).
+    """
+    info = resolve_study(store, study)
+    sid = [info["study_id"]]
+    conn = store.db.conn
+    counts = dict(
+        conn.execute(
+            "SELECT status, COUNT(*) FROM trials WHERE study_id = ? GROUP BY status", sid
+        ).fetchall()
+    )
+    datasets = pd.read_sql_query(
+        "SELECT DISTINCT d.name, d.task, d.rows, d.features, d.classes, d.source, d.licence "
+        "FROM datasets d JOIN trials t USING (dataset_id) WHERE t.study_id = ? ORDER BY d.name",
+        conn,
+        params=sid,
+    )
+    environments = pd.read_sql_query(
+        "SELECT recorded, python, numpy, scikit_learn, pandas, prunebench, platform "
+        "FROM environments WHERE study_id = ? ORDER BY recorded DESC LIMIT 5",
+        conn,
+        params=sid,
+    )
+    failed = store.query(
+        "SELECT t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.rule, t.error "
+        "FROM trials t JOIN datasets d USING (dataset_id) WHERE t.study_id = ? AND "
+        "t.status = 'failed'",
+        sid,
+    )
+    return {
+        "info": info,
+        "counts": counts,
+        "datasets": datasets,
+        "environments": environments,
+        "failed": failed,
+    }
+
+
+# ---- pandas for notebooks ----------------------------------------------------------------
 
 
 class Results:
@@ -96,19 +343,25 @@ class Results:
     def fold_rows(self) -> pd.DataFrame:
         """Finished trials' folds joined with their data set and factors (for statistics)."""
         with self._store() as store:
-            return stats.load_folds(store, self.study)
+            return load_folds(store, self.study)
 
     def comparison(self, metric: str | None = None) -> pd.DataFrame:
         """Pruned against unpruned per data set and configuration (see ``stats.comparison``)."""
-        return stats.comparison(self.fold_rows(), metric)
+        from .stats import comparison
+
+        return comparison(self.fold_rows(), metric)
 
     def ranking(self, metric: str | None = None) -> list[dict]:
-        """Configurations ranked across data sets (see ``stats.ranking``)."""
-        return stats.ranking(self.fold_rows(), metric)
+        """Configurations ranked across data sets (see ``ranks.ranking``)."""
+        from .ranks import ranking
+
+        return ranking(self.fold_rows(), metric)
 
     def recommendation(self) -> list[dict]:
-        """The recommended default per task family (see ``stats.recommendation``)."""
-        return stats.recommendation(self.fold_rows())
+        """The recommended default per task family (see ``ranks.recommendation``)."""
+        from .ranks import recommendation
+
+        return recommendation(self.fold_rows())
 
 
 def open_results(path: str | Path, study: str | None = None) -> Results:
@@ -258,7 +511,7 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
     list of Path
     """
     if fmt not in ("csv", "parquet"):
-        raise QueryError(f"--format must be csv or parquet; got {fmt!r}")
+        raise parameter_error("fmt", "export_tables", "'csv' or 'parquet'", fmt)
     results = open_results(path)
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
@@ -279,6 +532,14 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
     return written
 
 
+def duration_text(seconds: float) -> str:
+    """A duration as ``1h05m`` or ``4m07s``."""
+    seconds = int(round(seconds))
+    h, rest = divmod(seconds, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}h{m:02d}m" if h else f"{m}m{s:02d}s"
+
+
 def progress_report(path: str | Path, study: str | None = None, last_errors: int = 3) -> dict:
     """Counts, rate and ETA of a study, readable while a ``conduct`` writes to it.
 
@@ -287,19 +548,11 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
     dict
         ``study``, ``done``, ``failed``, ``pending``, ``total``, ``rate_per_minute``
         (trials finished per minute over the run so far), ``eta_seconds``,
-        ``last_finished`` and ``errors`` (the last lines of the latest tracebacks).
+        ``eta`` (as text), ``last_finished`` and ``errors`` (the last lines of the latest
+        tracebacks).
     """
     with ResultStore(path, readonly=True) as store:
-        studies = store.query("SELECT study_id, name FROM studies ORDER BY created")
-        if not studies:
-            raise StoreError(f"{path} holds no study yet")
-        if study is None:
-            chosen = studies[-1]
-        else:
-            named = [s for s in studies if s["name"] == study]
-            if not named:
-                raise StoreError(f"{path} has no study named {study!r}")
-            chosen = named[0]
+        chosen = resolve_study(store, study)
         sid = chosen["study_id"]
         counts = {
             r["status"]: r["n"]
@@ -334,6 +587,7 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
         "total": done + failed + pending,
         "rate_per_minute": rate,
         "eta_seconds": eta,
+        "eta": "-" if eta is None else duration_text(eta),
         "last_finished": times["last"],
         "errors": [e["error"].strip().splitlines()[-1] for e in errors if e["error"]],
     }

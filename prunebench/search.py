@@ -38,8 +38,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .datasets import is_classification
+from .results import pruned_losses
 from .stats import corrected_ttest
+from .vocabulary import CLASSIFICATION, FACTORS, family_of
 
 __all__ = ["relative_losses", "run_search", "search_storage_path"]
 
@@ -51,7 +52,7 @@ def search_storage_path(database: str | Path) -> Path:
 
 
 def _reference_loss(data) -> float:
-    if is_classification(data.task):
+    if family_of(data.task) == CLASSIFICATION:
         _, counts = np.unique(data.y, return_counts=True)
         return float(1 - counts.max() / counts.sum())
     return float(np.var(data.y))
@@ -65,20 +66,10 @@ def relative_losses(store, study, trial_id: str) -> dict:
     dict
         ``mean`` and ``se`` of the trial's relative loss (see the module notes).
     """
-    row = store.query(
-        "SELECT d.name AS dataset, d.task FROM trials t JOIN datasets d USING (dataset_id) "
-        "WHERE t.trial_id = ?",
-        [trial_id],
-    )[0]
-    metric = "mse" if row["task"] == "regression" else "error"
-    folds = store.query(
-        f"SELECT {metric} AS loss, n_train, n_test FROM folds WHERE trial_id = ? AND "
-        "arm = 'pruned'",
-        [trial_id],
-    )
-    reference = _reference_loss(study.datasets[row["dataset"]]) or 1.0
-    losses = np.array([f["loss"] for f in folds]) / reference
-    t = corrected_ttest(losses, [f["n_train"] for f in folds], [f["n_test"] for f in folds])
+    dataset, folds = pruned_losses(store, trial_id)
+    reference = _reference_loss(study.datasets[dataset]) or 1.0
+    losses = folds["loss"].to_numpy(dtype=float) / reference
+    t = corrected_ttest(losses, folds["n_train"], folds["n_test"])
     return {"mean": t.mean, "se": t.se}
 
 
@@ -101,13 +92,10 @@ def _suggest(trial, space: dict) -> dict:
 
 
 def _complete_levels(study, levels: dict) -> dict:
-    task = study.task_of(next(iter(study.datasets)))
-    defaults = {
-        "criterion": "gini" if task == "classification" else "squared_error",
-        "min_samples_leaf": 1,
-        "inner_folds": 10,
-        "prune_risk": "error" if task == "classification" else "squared_error",
-    }
+    """The searched levels, with the family's default for every factor not searched."""
+    family = study.task_of(next(iter(study.datasets)))
+    defaults = {name: factor.default[family] for name, factor in FACTORS.items()}
+    defaults["max_depth"] = None if defaults["max_depth"] == "none" else defaults["max_depth"]
     return {**defaults, **levels}
 
 
@@ -138,9 +126,33 @@ def run_search(study, store, runner, database: str | Path) -> dict:
     import optuna
 
     optuna.logging.set_verbosity(optuna.logging.WARNING)
-    spec = study.search
     storage_path = search_storage_path(database)
     storage = optuna.storages.RDBStorage(f"sqlite:///{storage_path}")
+    search, budget = _optuna_study(study, storage)
+    states = optuna.trial.TrialState
+    ended = (states.COMPLETE, states.PRUNED)
+    while len(search.get_trials(deepcopy=False, states=ended)) < budget:
+        trial = search.ask()
+        state, value, se = _evaluate_configuration(study, store, runner, trial)
+        if state == states.COMPLETE:
+            trial.set_user_attr("se", se)
+            search.tell(trial, value)
+            continue
+        search.tell(trial, state=state)
+        if (
+            state == states.FAIL
+            and len(search.trials) >= 3
+            and all(t.state == states.FAIL for t in search.trials[-3:])
+        ):
+            break  # three failures in a row: something is wrong beyond one configuration
+    return _search_summary(study, search, storage_path)
+
+
+def _optuna_study(study, storage):
+    """Optuna's study for a search (created or resumed) and its budget of configurations."""
+    import optuna
+
+    spec = study.search
     grid = None
     if spec.sampler == "grid":
         # every grid point is queued once, in a seeded order; Optuna's GridSampler stops
@@ -176,56 +188,63 @@ def run_search(study, store, runner, database: str | Path) -> dict:
         # a kill interrupted it: propose the same configuration again, first
         search.enqueue_trial(stale.params, skip_if_exists=False)
         storage.set_trial_state_values(stale._trial_id, optuna.trial.TrialState.FAIL)
-    ended = (optuna.trial.TrialState.COMPLETE, optuna.trial.TrialState.PRUNED)
-    keys = list(study.datasets)
+    return search, budget
+
+
+def _evaluate_configuration(study, store, runner, trial) -> tuple:
+    """Run one proposed configuration on the study's data sets, batch by batch.
+
+    Returns
+    -------
+    (TrialState, float or None, float or None)
+        COMPLETE with the mean relative loss and its standard error; PRUNED when early
+        stopping ended it; FAIL when a trial group failed.
+    """
+    import optuna
+
+    states = optuna.trial.TrialState
+    levels = _complete_levels(study, _suggest(trial, study.search.space))
+    groups = [study.trial_group(key, levels) for key in study.datasets]
+    store.add_trials(study, [t for g in groups for t in g.trials])
+    statuses = store.statuses(study.study_id)
     batch = max(runner.workers, 1)
-    while len(search.get_trials(deepcopy=False, states=ended)) < budget:
-        trial = search.ask()
-        levels = _complete_levels(study, _suggest(trial, spec.space))
-        groups = [study.trial_group(key, levels) for key in keys]
-        store.add_trials(study, [t for g in groups for t in g.trials])
-        statuses = store.statuses(study.study_id)
-        scores, failed, stopped = [], False, False
-        for start in range(0, len(groups), batch):
-            chunk = groups[start : start + batch]
-            outcomes = runner.run([g for g in chunk if statuses[g.trials[0].trial_id] != "done"])
-            if any(o.error is not None for o in outcomes):
-                failed = True
-                break
-            scores += [relative_losses(store, study, g.trials[0].trial_id) for g in chunk]
-            trial.report(float(np.mean([s["mean"] for s in scores])), step=len(scores))
-            if len(scores) < len(groups) and trial.should_prune():
-                stopped = True
-                break
-        if failed:
-            search.tell(trial, state=optuna.trial.TrialState.FAIL)
-            if (
-                all(t.state == optuna.trial.TrialState.FAIL for t in search.trials[-3:])
-                and len(search.trials) >= 3
-            ):
-                break  # three failures in a row: something is wrong beyond one configuration
-        elif stopped:
-            search.tell(trial, state=optuna.trial.TrialState.PRUNED)
-        else:
-            value = float(np.mean([s["mean"] for s in scores]))
-            se = float(np.sqrt(np.sum([s["se"] ** 2 for s in scores])) / len(scores))
-            trial.set_user_attr("se", se)
-            search.tell(trial, value)
-    complete = search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.COMPLETE,))
+    scores = []
+    for start in range(0, len(groups), batch):
+        chunk = groups[start : start + batch]
+        outcomes = runner.run([g for g in chunk if statuses[g.trials[0].trial_id] != "done"])
+        if any(o.error is not None for o in outcomes):
+            return states.FAIL, None, None
+        scores += [relative_losses(store, study, g.trials[0].trial_id) for g in chunk]
+        trial.report(float(np.mean([s["mean"] for s in scores])), step=len(scores))
+        if len(scores) < len(groups) and trial.should_prune():
+            return states.PRUNED, None, None
+    value = float(np.mean([s["mean"] for s in scores]))
+    se = float(np.sqrt(np.sum([s["se"] ** 2 for s in scores])) / len(scores))
+    return states.COMPLETE, value, se
+
+
+def _search_summary(study, search, storage_path: Path) -> dict:
+    """Counts of the search's configurations and its best one (see :func:`run_search`)."""
+    import optuna
+
+    states = optuna.trial.TrialState
+
+    def count(*wanted) -> int:
+        return len(search.get_trials(deepcopy=False, states=wanted))
+
     result = {
-        "configurations": len(search.get_trials(deepcopy=False, states=ended)),
-        "stopped_early": len(
-            search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.PRUNED,))
-        ),
-        "failed": len(search.get_trials(deepcopy=False, states=(optuna.trial.TrialState.FAIL,))),
+        "configurations": count(states.COMPLETE, states.PRUNED),
+        "stopped_early": count(states.PRUNED),
+        "failed": count(states.FAIL),
         "storage": str(storage_path),
     }
+    complete = search.get_trials(deepcopy=False, states=(states.COMPLETE,))
     if complete:
         best = min(complete, key=lambda t: t.value)
         se = best.user_attrs.get("se", float("nan"))
         result.update(
             best=_complete_levels(
-                study, _suggest(optuna.trial.FixedTrial(best.params), spec.space)
+                study, _suggest(optuna.trial.FixedTrial(best.params), study.search.space)
             ),
             best_value=best.value,
             ci_low=best.value - 1.96 * se,

@@ -1,4 +1,4 @@
-"""Statistics over stored results: corrected CIs, paired differences, ranks, a default.
+"""Statistics over stored results: corrected CIs, paired differences, tests across data sets.
 
 Per data set and configuration the outer folds of repeated CV are not
 independent (their training sets overlap), so the usual t interval is too
@@ -10,11 +10,10 @@ the Friedman test with the Iman-Davenport F, the Nemenyi critical difference,
 Wilcoxon's signed-rank test, and a Bayesian signed-rank test with a region of
 practical equivalence (Benavoli et al. 2017).
 
-A *configuration* is the tuple of factor levels (criterion, max_depth,
-min_samples_leaf, inner_folds, rule, prune_risk) and means its pruned tree.
-Rankings also hold each distinct unpruned tree (criterion, max_depth,
-min_samples_leaf) as a configuration of its own with rule ``"unpruned"``, so
-"do not prune" can win.
+A *configuration* (:class:`prunebench.vocabulary.Configuration`) is the level of
+every factor and means its pruned tree.  Frames in, frames out: the folds come
+from :func:`prunebench.results.load_folds`; the ranking across data sets and the
+recommended default are in :mod:`prunebench.ranks`.
 """
 
 from __future__ import annotations
@@ -25,17 +24,22 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from .exceptions import PrunebenchError
-from .store import ResultStore
+from .exceptions import StatsError
+from .vocabulary import (
+    FACTORS,
+    METRICS,
+    config_label,
+    default_metric,
+    factor_names,
+    family_of,
+    higher_is_better,
+    metric_names,
+)
 
 __all__ = [
     "COMPARISON_COLUMNS",
-    "CONFIG",
-    "HIGHER_IS_BETTER",
-    "ROPE",
     "StatsError",
     "TTest",
-    "arm_means",
     "bayesian_signed_rank",
     "compare_configurations",
     "comparison",
@@ -46,30 +50,15 @@ __all__ = [
     "friedman_from_ranks",
     "friedman_test",
     "holm",
-    "load_folds",
+    "metric_rows",
     "nemenyi_q",
-    "ranking",
-    "recommendation",
 ]
-
-#: the factor columns that make a configuration
-CONFIG = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
-#: metrics where larger is better; every other metric is a loss
-HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2"}
-#: region of practical equivalence of the Bayesian signed-rank test: 0.01 of error
-#: (one percentage point) for classification, 1% of the unpruned loss for regression
-ROPE = 0.01
-_METRICS = {
-    "classification": ["error", "accuracy", "balanced_accuracy", "log_loss", "brier"],
-    "regression": ["mse", "mae", "r2"],
-}
-
 
 #: the columns of :func:`comparison`'s table, in the order the commands print them
 COMPARISON_COLUMNS = [
     "dataset",
     "task",
-    *CONFIG,
+    *FACTORS,
     "metric",
     "mean_pruned",
     "mean_unpruned",
@@ -95,15 +84,15 @@ COMPARISON_COLUMNS = [
 ]
 
 
-class StatsError(PrunebenchError):
-    """The stored results cannot answer the question asked."""
 
-    exit_code = 2
-
-
-def default_metric(task: str) -> str:
-    """``error`` for classification tasks, ``mse`` for regression."""
-    return "mse" if task == "regression" else "error"
+def __getattr__(name: str):
+    # names that moved to the vocabulary, computed on access so that an added metric or
+    # factor shows here too; the ranking moved to prunebench.ranks
+    if name == "CONFIG":
+        return factor_names()
+    if name == "HIGHER_IS_BETTER":
+        return {m.name for m in METRICS.values() if m.higher_is_better}
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 # ---- one data set ----------------------------------------------------------------------
@@ -339,59 +328,24 @@ def bayesian_signed_rank(
     }
 
 
-# ---- reading the store -----------------------------------------------------------------
-
-
-def load_folds(store: ResultStore, study: str | None = None) -> pd.DataFrame:
-    """Every fold row of finished trials, with dataset, task and factor columns.
+def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, dict]:
+    """Folds restricted to the tasks that have the metric, and task -> metric used.
 
     Parameters
     ----------
-    store : ResultStore
-    study : str, optional
-        Study name; required when the database holds more than one.
+    folds : DataFrame
+        From :func:`prunebench.results.load_folds`.
+    metric : str, optional
+        Default: each task family's default metric.
 
     Returns
     -------
-    DataFrame
-        One row per trial, outer fold and arm.
+    (DataFrame, dict)
     """
-    studies = store.query("SELECT study_id, name FROM studies ORDER BY created")
-    if not studies:
-        raise StatsError(f"{store.path} holds no study yet")
-    if study is None:
-        if len(studies) > 1:
-            names = ", ".join(s["name"] for s in studies)
-            raise StatsError(f"{store.path} holds several studies ({names}); pick one with --study")
-        study_id = studies[0]["study_id"]
-    else:
-        match = [s for s in studies if s["name"] == study]
-        if not match:
-            raise StatsError(f"{store.path} has no study named {study!r}")
-        study_id = match[0]["study_id"]
-    rows = store.query(
-        "SELECT d.name AS dataset, d.task, t.trial_id, t.criterion, t.max_depth, "
-        't.min_samples_leaf, t.inner_folds, t.rule, t.prune_risk, f."repeat", f.fold, f.arm, '
-        "f.n_train, f.n_test, f.error, f.accuracy, f.balanced_accuracy, f.log_loss, f.brier, "
-        "f.mse, f.mae, f.r2, f.n_leaves, f.depth, f.alpha "
-        "FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id) "
-        "WHERE t.study_id = ? AND t.status = 'done'",
-        [study_id],
-    )
-    if not rows:
-        raise StatsError(f"{store.path}: the study has no finished trials yet")
-    frame = pd.DataFrame(rows)
-    frame["max_depth"] = frame["max_depth"].astype("Int64")
-    return frame
-
-
-def _metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, dict]:
-    """Folds restricted to tasks that have the metric; task -> metric used."""
     tasks = {}
     for task in folds["task"].unique():
-        family = "regression" if task == "regression" else "classification"
         chosen = metric or default_metric(task)
-        if chosen not in _METRICS[family]:
+        if chosen not in metric_names(family_of(task)):
             continue
         tasks[task] = chosen
     if not tasks:
@@ -399,69 +353,12 @@ def _metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame,
     return folds[folds["task"].isin(tasks)], tasks
 
 
-def _config_key(row) -> tuple:
-    return tuple(None if pd.isna(row[c]) else row[c] for c in CONFIG)
-
-
-_SHORT = {
-    "entropy": "entr",
-    "log_loss": "logl",
-    "squared_error": "sq",
-    "absolute_error": "abs",
-    "poisson": "pois",
-    "error": "err",
-    "impurity": "imp",
-    "gini": "gini",
-}
-
-
-def config_label(config) -> str:
-    """A short label of a configuration, e.g. ``"entr d=none l=5 k=10 1se err"``.
-
-    Parameters
-    ----------
-    config : tuple or mapping
-        The levels in :data:`CONFIG` order, or a mapping with those keys.
-
-    Returns
-    -------
-    str
-    """
-    if not isinstance(config, tuple):
-        config = _config_key(config)
-    crit, depth, leaf, inner, rule, risk = config
-    depth = "none" if depth is None else int(depth)
-    head = f"{_SHORT.get(crit, crit)} d={depth} l={int(leaf)}"
-    if rule == "unpruned":
-        return f"{head} unpruned"
-    return f"{head} k={int(inner)} {rule} {_SHORT.get(risk, risk)}"
-
-
 # ---- the comparison table --------------------------------------------------------------
 
 
-def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05) -> pd.DataFrame:
-    """Pruned against unpruned, per data set and configuration.
-
-    Parameters
-    ----------
-    folds : DataFrame
-        From :func:`load_folds`.
-    metric : str, optional
-        Default ``error`` for classification, ``mse`` for regression.
-    alpha : float, default=0.05
-
-    Returns
-    -------
-    DataFrame
-        One row per data set and configuration: the factor columns, ``metric``,
-        ``mean_pruned``, ``mean_unpruned``, the paired ``diff`` (pruned - unpruned)
-        with its corrected ``ci_low``/``ci_high`` and ``p_value``, the naive interval
-        and p-value, ``p_holm`` (Holm-adjusted over all rows), ``verdict``, the
-        arms' corrected CIs, ``leaves_pruned``, ``leaves_unpruned``, ``leaves_saved``
-        with its corrected CI, and ``n_folds``.
-    """
-    folds, tasks = _metric_rows(folds, metric)
+def _paired_means(folds: pd.DataFrame, metric: str | None) -> pd.DataFrame:
+    """Per trial: means and variances of both arms, of their per-fold difference and of leaves."""
+    folds, tasks = metric_rows(folds, metric)
     folds = folds.assign(metric=folds["task"].map(tasks))
     folds["value"] = np.nan
     for task, m in tasks.items():
@@ -475,8 +372,7 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
     both["d"] = both["value"] - both["value_u"]
     both["saved"] = both["n_leaves_u"] - both["n_leaves"]
     both["ratio"] = both["n_test"] / both["n_train"]
-    g = both.groupby("trial_id", sort=False)
-    agg = g.agg(
+    agg = both.groupby("trial_id", sort=False).agg(
         mean_pruned=("value", "mean"),
         var_pruned=("value", "var"),
         mean_unpruned=("value_u", "mean"),
@@ -491,9 +387,44 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         var_saved=("saved", "var"),
     )
     meta = pruned.drop_duplicates("trial_id").set_index("trial_id")[
-        ["dataset", "task", *CONFIG, "metric"]
+        ["dataset", "task", *factor_names(), "metric"]
     ]
-    table = meta.join(agg)
+    return meta.join(agg)
+
+
+def _verdicts(table: pd.DataFrame) -> np.ndarray:
+    """Which arm the corrected interval of the difference favours, in the metric's direction."""
+    lower_better = ~table["metric"].map(higher_is_better).astype(bool)
+    below, above = table["ci_high"] < 0, table["ci_low"] > 0
+    return np.select(
+        [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
+        ["pruned better", "pruned better", "unpruned better", "unpruned better"],
+        "no evidence either way",
+    )
+
+
+def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05) -> pd.DataFrame:
+    """Pruned against unpruned, per data set and configuration.
+
+    Parameters
+    ----------
+    folds : DataFrame
+        From :func:`prunebench.results.load_folds`.
+    metric : str, optional
+        Default ``error`` for classification, ``mse`` for regression.
+    alpha : float, default=0.05
+
+    Returns
+    -------
+    DataFrame
+        One row per data set and configuration: the factor columns, ``metric``,
+        ``mean_pruned``, ``mean_unpruned``, the paired ``diff`` (pruned - unpruned)
+        with its corrected ``ci_low``/``ci_high`` and ``p_value``, the naive interval
+        and p-value, ``p_holm`` (Holm-adjusted over all rows), ``verdict``, the
+        arms' corrected CIs, ``leaves_pruned``, ``leaves_unpruned``, ``leaves_saved``
+        with its corrected CI, and ``n_folds``.
+    """
+    table = _paired_means(folds, metric)
     n, ratio = table["n_folds"], table["ratio"]
     diff = _corrected(table["diff"], table["var_diff"], n, ratio, alpha)
     for k in ("ci_low", "ci_high", "p_value", "naive_ci_low", "naive_ci_high", "naive_p_value"):
@@ -503,14 +434,9 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         table[f"{arm}_ci_low"], table[f"{arm}_ci_high"] = r["ci_low"], r["ci_high"]
     saved = _corrected(table["leaves_saved"], table["var_saved"], n, ratio, alpha)
     table["leaves_saved_ci_low"], table["leaves_saved_ci_high"] = saved["ci_low"], saved["ci_high"]
-    lower_better = ~table["metric"].isin(HIGHER_IS_BETTER)
-    below, above = table["ci_high"] < 0, table["ci_low"] > 0
-    table["verdict"] = np.select(
-        [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
-        ["pruned better", "pruned better", "unpruned better", "unpruned better"],
-        "no evidence either way",
-    )
-    table = table.sort_values(["dataset", *CONFIG], na_position="last").reset_index(drop=True)
+    table["verdict"] = _verdicts(table)
+    table = table.sort_values(["dataset", *factor_names()], na_position="last")
+    table = table.reset_index(drop=True)
     table["max_depth"] = table["max_depth"].astype("Int64")
     table["p_holm"] = holm(table["p_value"])
     return table[COMPARISON_COLUMNS]
@@ -532,10 +458,10 @@ def compare_configurations(
     Parameters
     ----------
     folds : DataFrame
-        From :func:`load_folds`.
+        From :func:`prunebench.results.load_folds`.
     dataset : str
     first, second : dict
-        Factor levels (any subset of :data:`CONFIG` that names one trial each).
+        Factor levels (any subset of the factors that names one trial each).
     metric : str, optional
     alpha : float, default=0.05
 
@@ -562,254 +488,3 @@ def compare_configurations(
 
     a, b = pick(first), pick(second)
     return corrected_ttest(a[m] - b[m], a["n_train"], a["n_test"], alpha)
-
-
-# ---- ranking across data sets ----------------------------------------------------------
-
-
-def _config_scores(folds: pd.DataFrame, metric: str) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """(datasets x configurations) mean metric and mean leaves, unpruned baselines included."""
-    pruned = folds[folds["arm"] == "pruned"]
-    unpruned = folds[folds["arm"] == "unpruned"].copy()
-    # one unpruned tree per (criterion, depth, leaf size): identical across the other factors
-    unpruned["inner_folds"] = None
-    unpruned["rule"] = "unpruned"
-    unpruned["prune_risk"] = None
-    unpruned = unpruned.drop_duplicates(
-        ["dataset", "criterion", "max_depth", "min_samples_leaf", "repeat", "fold"]
-    )
-    both = pd.concat([pruned, unpruned], ignore_index=True)
-    columns = [both[c].astype(object).where(both[c].notna(), None) for c in CONFIG]
-    both["config"] = list(zip(*columns, strict=True))
-    means = both.pivot_table(index="dataset", columns="config", values=metric, aggfunc="mean")
-    leaves = both.pivot_table(index="dataset", columns="config", values="n_leaves", aggfunc="mean")
-    return means, leaves
-
-
-def ranking(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05) -> list[dict]:
-    """Configurations ranked across data sets, one result per task family.
-
-    Parameters
-    ----------
-    folds : DataFrame
-        From :func:`load_folds`.
-    metric : str, optional
-    alpha : float, default=0.05
-
-    Returns
-    -------
-    list of dict
-        Per task family (classification, regression): ``metric``, ``datasets``,
-        ``table`` (DataFrame: configuration, label, mean_rank, wins/ties/losses against
-        the best by mean, mean metric, mean leaves, ``not_worse`` than the best by the
-        critical difference, and for pruned configurations Wilcoxon's p and the
-        Bayesian signed-rank probabilities against their unpruned tree), and the
-        ``friedman`` and ``cd`` results.
-    """
-    folds, tasks = _metric_rows(folds, metric)
-    results = []
-    family_of = {t: ("regression" if t == "regression" else "classification") for t in tasks}
-    for family in sorted(set(family_of.values())):
-        mine = folds[folds["task"].map(family_of) == family]
-        m = {tasks[t] for t in tasks if family_of[t] == family}.pop()
-        means, leaves = _config_scores(mine, m)
-        complete = means.dropna(axis=1)
-        if complete.shape[1] < means.shape[1]:
-            means, leaves = complete, leaves[complete.columns]
-        sign = -1.0 if m in HIGHER_IS_BETTER else 1.0
-        losses = sign * means.to_numpy()
-        n, k = losses.shape
-        # tests across data sets need two or more of them
-        fried = friedman_test(losses) if k >= 2 and n >= 2 else None
-        mean_ranks = (
-            fried["mean_ranks"]
-            if fried
-            else np.apply_along_axis(sps.rankdata, 1, losses).mean(axis=0)
-        )
-        cd = critical_difference(k, n, alpha) if n >= 2 else np.nan
-        best = int(np.lexsort((leaves.mean(axis=0).to_numpy(), mean_ranks))[0])
-        rows = []
-        for j, config in enumerate(means.columns):
-            wins = int(np.sum(losses[:, j] < losses[:, best]))
-            ties = int(np.sum(losses[:, j] == losses[:, best]))
-            row = dict(zip(CONFIG, config, strict=True))
-            row.update(
-                config=config,
-                label=config_label(config),
-                mean_rank=float(mean_ranks[j]),
-                wins=wins,
-                ties=ties,
-                losses=int(n - wins - ties),
-                mean_metric=float(means.iloc[:, j].mean()),
-                mean_leaves=float(leaves.iloc[:, j].mean()),
-                not_worse=bool(np.isnan(cd) or mean_ranks[j] - mean_ranks[best] <= cd),
-            )
-            baseline = (config[0], config[1], config[2], None, "unpruned", None)
-            if config[4] != "unpruned" and baseline in means.columns and n >= 2:
-                gains = sign * (means[baseline] - means[config]).to_numpy()
-                row["wilcoxon_p"] = _wilcoxon(gains)
-                if family == "regression":
-                    # losses of regression sets differ in scale: compare relative gains
-                    gains = gains / np.abs(means[baseline].to_numpy())
-                bayes = bayesian_signed_rank(gains, rope=ROPE)
-                row.update(
-                    p_pruned_better=bayes["p_first_better"],
-                    p_equivalent=bayes["p_equivalent"],
-                    p_unpruned_better=bayes["p_second_better"],
-                )
-            rows.append(row)
-        table = pd.DataFrame(rows).sort_values(["mean_rank", "mean_leaves"]).reset_index(drop=True)
-        results.append(
-            {
-                "family": family,
-                "metric": m,
-                "datasets": list(means.index),
-                "table": table,
-                "friedman": fried,
-                "cd": cd,
-                "alpha": alpha,
-                "best": means.columns[best],
-                "means": means,
-                "leaves": leaves,
-            }
-        )
-    return results
-
-
-def _wilcoxon(gains: np.ndarray) -> float:
-    if gains.size < 2 or np.all(gains == 0):
-        return np.nan
-    return float(sps.wilcoxon(gains, zero_method="zsplit").pvalue)
-
-
-# ---- the recommended default -----------------------------------------------------------
-
-
-def recommendation(folds: pd.DataFrame, alpha: float = 0.05) -> list[dict]:
-    """The evidence-based default configuration, per task family.
-
-    Among the configurations not significantly worse than the best by the Nemenyi
-    critical difference, the best mean rank wins and ties go to smaller trees.
-    Its regret on each data set is its mean loss minus the best configuration's on
-    that data set, with a corrected CI from the paired per-fold differences.
-
-    Parameters
-    ----------
-    folds : DataFrame
-        From :func:`load_folds`.
-    alpha : float, default=0.05
-
-    Returns
-    -------
-    list of dict
-        ``family``, ``metric``, ``config`` (dict of levels), ``label``, ``ranking``
-        (the :func:`ranking` result), ``regret`` (DataFrame per data set), ``mean_regret``
-        and ``worst_regret``.
-    """
-    out = []
-    for ranked in ranking(folds, None, alpha):
-        table, m = ranked["table"], ranked["metric"]
-        eligible = table[table["not_worse"]].sort_values(["mean_rank", "mean_leaves"])
-        chosen = eligible.iloc[0]
-        config = chosen["config"]
-        means = ranked["means"]
-        sign = -1.0 if m in HIGHER_IS_BETTER else 1.0
-        regrets = []
-        for dataset in ranked["datasets"]:
-            row = means.loc[dataset]
-            best_config = (sign * row).idxmin()
-            chosen_folds = _config_folds(folds, dataset, config, m)
-            best_folds = _config_folds(folds, dataset, best_config, m)
-            paired = chosen_folds.merge(
-                best_folds, left_index=True, right_index=True, suffixes=("_c", "_b")
-            )
-            t = corrected_ttest(
-                sign * (paired[f"{m}_c"] - paired[f"{m}_b"]),
-                paired["n_train_c"],
-                paired["n_test_c"],
-                alpha,
-            )
-            regrets.append(
-                {
-                    "dataset": dataset,
-                    "regret": t.mean,
-                    "ci_low": t.ci_low,
-                    "ci_high": t.ci_high,
-                    "best": config_label(best_config),
-                    "loses": bool(t.ci_low > 0),
-                }
-            )
-        regret = pd.DataFrame(regrets)
-        levels = {c: (None if pd.isna(chosen[c]) else chosen[c]) for c in CONFIG}
-        out.append(
-            {
-                "family": ranked["family"],
-                "metric": m,
-                "config": levels,
-                "label": chosen["label"],
-                "mean_rank": float(chosen["mean_rank"]),
-                "mean_leaves": float(chosen["mean_leaves"]),
-                "ranking": ranked,
-                "regret": regret,
-                "mean_regret": float(regret["regret"].mean()),
-                "worst_regret": float(regret["regret"].max()),
-            }
-        )
-    return out
-
-
-def _config_folds(folds: pd.DataFrame, dataset: str, config: tuple, metric: str) -> pd.DataFrame:
-    crit, depth, leaf, inner, rule, risk = config
-    rows = folds[
-        (folds["dataset"] == dataset)
-        & (folds["criterion"] == crit)
-        & (folds["min_samples_leaf"] == leaf)
-    ]
-    rows = rows[rows["max_depth"].isna()] if depth is None else rows[rows["max_depth"] == depth]
-    if rule == "unpruned":
-        rows = rows[rows["arm"] == "unpruned"].drop_duplicates(["repeat", "fold"])
-    else:
-        rows = rows[
-            (rows["arm"] == "pruned")
-            & (rows["inner_folds"] == inner)
-            & (rows["rule"] == rule)
-            & (rows["prune_risk"] == risk)
-        ]
-    return rows.set_index(["repeat", "fold"])[[metric, "n_train", "n_test"]].sort_index()
-
-
-# ---- the short table conduct ends with ----------------------------------------------
-
-
-def arm_means(store: ResultStore, study_id: str) -> pd.DataFrame:
-    """Mean test metric and leaves per data set, rule and arm.
-
-    Parameters
-    ----------
-    store : ResultStore
-    study_id : str
-
-    Returns
-    -------
-    DataFrame
-        Columns ``dataset``, ``task``, ``rule``, ``arm``, ``metric`` (``error`` for
-        classification, ``mse`` for regression), ``value`` (its mean over trials and
-        outer folds), ``n_leaves`` (mean leaves) and ``n_trials``.
-    """
-    rows = store.query(
-        """
-        SELECT d.name AS dataset, d.task, t.rule, f.arm,
-               AVG(CASE WHEN d.task = 'regression' THEN f.mse ELSE f.error END) AS value,
-               AVG(f.n_leaves) AS n_leaves, COUNT(DISTINCT t.trial_id) AS n_trials
-        FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
-        WHERE t.study_id = ? AND t.status = 'done'
-        GROUP BY d.name, d.task, t.rule, f.arm
-        ORDER BY d.name, t.rule, f.arm DESC
-        """,
-        [study_id],
-    )
-    frame = pd.DataFrame(
-        rows, columns=["dataset", "task", "rule", "arm", "value", "n_leaves", "n_trials"]
-    )
-    frame.insert(4, "metric", frame["task"].map(lambda t: "mse" if t == "regression" else "error"))
-    return frame

@@ -26,13 +26,21 @@ import sqlite_utils
 
 from . import lockfile
 from ._version import __version__
-from .exceptions import PrunebenchError
+from .exceptions import StoreError
+from .vocabulary import metric_names
 
-__all__ = ["SCHEMA_VERSION", "ResultStore", "StoreError", "connect_readonly", "utc_now"]
+__all__ = [
+    "SCHEMA_VERSION",
+    "ResultStore",
+    "StoreError",
+    "connect_readonly",
+    "schema_sql",
+    "utc_now",
+]
 
 SCHEMA_VERSION = 1
 
-_SCHEMA = """
+_SCHEMA_TEMPLATE = """
 CREATE TABLE studies (
     study_id TEXT PRIMARY KEY,
     name TEXT NOT NULL UNIQUE,
@@ -87,14 +95,7 @@ CREATE TABLE folds (
     n_train INTEGER NOT NULL,
     n_test INTEGER NOT NULL,
     test_fingerprint TEXT NOT NULL,
-    error REAL,
-    accuracy REAL,
-    balanced_accuracy REAL,
-    log_loss REAL,
-    brier REAL,
-    mse REAL,
-    mae REAL,
-    r2 REAL,
+{metric_columns}
     n_leaves INTEGER NOT NULL,
     depth INTEGER NOT NULL,
     alpha REAL NOT NULL,
@@ -127,19 +128,14 @@ CREATE TABLE environments (
 CREATE VIEW arm_summary AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
        t.inner_folds, t.rule, t.prune_risk, f.arm, COUNT(*) AS n_folds,
-       AVG(f.error) AS error, AVG(f.accuracy) AS accuracy,
-       AVG(f.balanced_accuracy) AS balanced_accuracy, AVG(f.log_loss) AS log_loss,
-       AVG(f.brier) AS brier, AVG(f.mse) AS mse, AVG(f.mae) AS mae, AVG(f.r2) AS r2,
+       {metric_means},
        AVG(f.n_leaves) AS n_leaves, AVG(f.depth) AS depth, AVG(f.alpha) AS alpha
 FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
 GROUP BY t.trial_id, f.arm;
 CREATE VIEW fold_differences AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
        t.inner_folds, t.rule, t.prune_risk, p."repeat", p.fold, p.n_train, p.n_test,
-       p.error - u.error AS error, p.accuracy - u.accuracy AS accuracy,
-       p.balanced_accuracy - u.balanced_accuracy AS balanced_accuracy,
-       p.log_loss - u.log_loss AS log_loss, p.brier - u.brier AS brier,
-       p.mse - u.mse AS mse, p.mae - u.mae AS mae, p.r2 - u.r2 AS r2,
+       {metric_differences},
        p.n_leaves - u.n_leaves AS n_leaves, p.alpha AS alpha
 FROM folds p
 JOIN folds u ON u.trial_id = p.trial_id AND u."repeat" = p."repeat" AND u.fold = p.fold
@@ -148,14 +144,26 @@ JOIN trials t ON t.trial_id = p.trial_id JOIN datasets d USING (dataset_id)
 WHERE p.arm = 'pruned';
 """
 
+
+
+def schema_sql() -> str:
+    """The schema of a new results database, its metric columns and views from the vocabulary.
+
+    One ``REAL`` column per metric of :data:`prunebench.vocabulary.METRICS` in ``folds``,
+    its mean in ``arm_summary`` and its pruned - unpruned difference in
+    ``fold_differences``, in the vocabulary's order.
+    """
+    names = metric_names()
+    return _SCHEMA_TEMPLATE.format(
+        metric_columns="\n".join(f"    {m} REAL," for m in names),
+        metric_means=",\n       ".join(f"AVG(f.{m}) AS {m}" for m in names),
+        metric_differences=",\n       ".join(f"p.{m} - u.{m} AS {m}" for m in names),
+    )
+
+
 # schema version n -> SQL that brings a version-n file to n + 1
 _UPGRADES: dict[int, str] = {}
 
-
-class StoreError(PrunebenchError):
-    """The results database cannot be used as asked."""
-
-    exit_code = 1
 
 
 def _explain(path: Path, err: sqlite3.Error, reading: bool = False) -> StoreError:
@@ -336,7 +344,7 @@ class ResultStore:
             self._wal()
             with conn:
                 conn.executescript(
-                    f"BEGIN; {_SCHEMA} PRAGMA user_version = {SCHEMA_VERSION}; COMMIT;"
+                    f"BEGIN; {schema_sql()} PRAGMA user_version = {SCHEMA_VERSION}; COMMIT;"
                 )
             version = SCHEMA_VERSION
         while version < SCHEMA_VERSION:

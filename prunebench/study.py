@@ -1,4 +1,4 @@
-"""Study files: parse, validate, and expand into trials and trial groups.
+"""Study files: parse and validate them into a :class:`~prunebench.trials.Study`.
 
 A study file is TOML::
 
@@ -30,13 +30,9 @@ the line where it could be found, and the key.
 
 from __future__ import annotations
 
-import hashlib
-import itertools
-import json
 import os
 import re
 import tomllib
-from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -44,15 +40,19 @@ import numpy as np
 from .datasets import (
     DatasetError,
     LoadedDataset,
-    is_classification,
     load_dataset,
+    read_manifest,
     register_manifest,
 )
-from .exceptions import PrunebenchError
+from .exceptions import StudyError
 from .selection import parse_rule
+from .trials import FACTORS, SearchSpec, Study, Trial, TrialGroup
+from .vocabulary import CLASSIFICATION, CRITERIA, FAMILIES, REGRESSION, family_of
+from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
     "CLASSIFICATION_CRITERIA",
+    "FACTORS",
     "REGRESSION_CRITERIA",
     "SearchSpec",
     "Study",
@@ -63,21 +63,8 @@ __all__ = [
     "parse_study",
 ]
 
-CLASSIFICATION_CRITERIA = ("gini", "entropy", "log_loss")
-REGRESSION_CRITERIA = ("squared_error", "absolute_error", "poisson")
-_RISKS = {"classification": ("error", "impurity"), "regression": ("squared_error", "impurity")}
-_CRITERIA = {"classification": CLASSIFICATION_CRITERIA, "regression": REGRESSION_CRITERIA}
-_DEFAULTS = {
-    "classification": {"criterion": ["gini"], "prune_risk": ["error"]},
-    "regression": {"criterion": ["squared_error"], "prune_risk": ["squared_error"]},
-    "common": {
-        "max_depth": ["none"],
-        "min_samples_leaf": [1],
-        "inner_folds": [10],
-        "rule": ["1se"],
-    },
-}
-FACTORS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk")
+CLASSIFICATION_CRITERIA = CRITERIA[CLASSIFICATION]
+REGRESSION_CRITERIA = CRITERIA[REGRESSION]
 _TOP_KEYS = {
     "name",
     "description",
@@ -91,253 +78,10 @@ _TOP_KEYS = {
 }
 _SAMPLERS = ("tpe", "random", "grid")
 _SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
-_SPACE_KEYS = ("criterion", "max_depth", "min_samples_leaf", "inner_folds", "se", "prune_risk")
+# a search varies the k of the k-SE rule ("se") where a sweep names rules
+_SPACE_KEYS = tuple("se" if name == "rule" else name for name in FACTORS)
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,79}$")
 
-
-class StudyError(PrunebenchError):
-    """A study file cannot be used as written."""
-
-    exit_code = 2
-
-
-@dataclass(frozen=True)
-class Trial:
-    """One configuration on one data set.
-
-    Attributes
-    ----------
-    trial_id : str
-        Deterministic id from the study name, the data set's fingerprint and the levels.
-    group_id : str
-        Id of the trials that share every tree fit (they differ only in ``rule``).
-    dataset : str
-        The data set's key in the study (its name, or name plus parameters).
-    criterion, max_depth, min_samples_leaf, inner_folds, rule, prune_risk
-        The levels; ``max_depth`` is None for unlimited.
-    """
-
-    trial_id: str
-    group_id: str
-    dataset: str
-    criterion: str
-    max_depth: int | None
-    min_samples_leaf: int
-    inner_folds: int
-    rule: str
-    prune_risk: str
-
-    def levels(self) -> dict:
-        """The factor levels as a dict."""
-        return {f: getattr(self, f) for f in FACTORS}
-
-
-@dataclass(frozen=True)
-class TrialGroup:
-    """Trials that share every tree fit: same data set and levels but the rule."""
-
-    group_id: str
-    dataset: str
-    criterion: str
-    max_depth: int | None
-    min_samples_leaf: int
-    inner_folds: int
-    prune_risk: str
-    trials: tuple[Trial, ...]
-
-    @property
-    def rules(self) -> list[str]:
-        """The rules of the group's trials."""
-        return [t.rule for t in self.trials]
-
-
-@dataclass(frozen=True)
-class SearchSpec:
-    """A search over configurations instead of the full grid.
-
-    Attributes
-    ----------
-    sampler : {"tpe", "random", "grid"}
-    configurations : int
-        Configurations to evaluate (each on every data set of the study).
-    early_stopping : bool
-        Stop a configuration that is clearly poor after a few data sets (Optuna's
-        median pruner; "early stopping" here, so it is not confused with tree pruning).
-    seed : int
-    space : dict
-        Name -> ``("choices", [...])``, ``("int", low, high, log)`` or
-        ``("float", low, high)``; names are ``criterion``, ``max_depth`` ("none" allowed
-        among choices), ``min_samples_leaf``, ``inner_folds``, ``se`` (the k of the
-        k-SE rule, a float) and ``prune_risk``.
-    """
-
-    sampler: str
-    configurations: int
-    early_stopping: bool
-    seed: int
-    space: dict
-
-
-@dataclass
-class Study:
-    """A validated study.
-
-    Attributes
-    ----------
-    name, description : str
-    seed : int
-    repeats, folds : int
-        The outer scheme.
-    datasets : dict
-        Study key -> :class:`~prunebench.datasets.LoadedDataset`.
-    dataset_specs : dict
-        Study key -> (registry name, parameters, manifest path or None), for workers
-        that load by name.
-    factors : dict
-        Task ("classification"/"regression") -> factor -> levels.
-    text : str
-        The study file's text.
-    path : Path or None
-    database : Path or None
-        From the file, resolved against its folder.
-    search : SearchSpec or None
-        The ``[search]`` section, when the study searches instead of sweeping.
-    time_limit : float or None
-        Seconds each trial group may take (``time_limit``); a group past it is stopped
-        and its trials are stored as failed with the reason.
-    """
-
-    name: str
-    description: str
-    seed: int
-    repeats: int
-    folds: int
-    datasets: dict[str, LoadedDataset]
-    dataset_specs: dict[str, tuple[str, dict, str | None]]
-    factors: dict[str, dict[str, list]]
-    text: str
-    path: Path | None = None
-    database: Path | None = None
-    search: SearchSpec | None = None
-    time_limit: float | None = None
-    _trials: list[Trial] = field(default_factory=list, repr=False)
-
-    @property
-    def text_hash(self) -> str:
-        """SHA-256 of the study file's text."""
-        return hashlib.sha256(self.text.encode()).hexdigest()
-
-    @property
-    def study_id(self) -> str:
-        """Deterministic id of the study: a hash of its name."""
-        return hashlib.sha256(f"study:{self.name}".encode()).hexdigest()[:16]
-
-    @property
-    def outer_scheme(self) -> str:
-        """The outer CV scheme, e.g. ``"10x10"`` (repeats x folds)."""
-        return f"{self.repeats}x{self.folds}"
-
-    def trials(self) -> list[Trial]:
-        """Every trial: data sets x factor levels, in a fixed order (none for a search)."""
-        if not self._trials and self.search is None:
-            self._trials = list(_expand(self))
-        return self._trials
-
-    def trial_group(self, dataset: str, levels: dict) -> TrialGroup:
-        """The one-trial group of a configuration on a data set (used by searches).
-
-        Parameters
-        ----------
-        dataset : str
-            A data set key of the study.
-        levels : dict
-            ``criterion``, ``max_depth`` (None = unlimited), ``min_samples_leaf``,
-            ``inner_folds``, ``rule``, ``prune_risk``.
-        """
-        trial = _make_trial(self, dataset, levels)
-        return TrialGroup(
-            group_id=trial.group_id,
-            dataset=dataset,
-            criterion=trial.criterion,
-            max_depth=trial.max_depth,
-            min_samples_leaf=trial.min_samples_leaf,
-            inner_folds=trial.inner_folds,
-            prune_risk=trial.prune_risk,
-            trials=(trial,),
-        )
-
-    def groups(self) -> list[TrialGroup]:
-        """The trials grouped by shared tree fits, in a fixed order."""
-        groups: dict[str, list[Trial]] = {}
-        for trial in self.trials():
-            groups.setdefault(trial.group_id, []).append(trial)
-        out = []
-        for gid, trials in groups.items():
-            t = trials[0]
-            out.append(
-                TrialGroup(
-                    group_id=gid,
-                    dataset=t.dataset,
-                    criterion=t.criterion,
-                    max_depth=t.max_depth,
-                    min_samples_leaf=t.min_samples_leaf,
-                    inner_folds=t.inner_folds,
-                    prune_risk=t.prune_risk,
-                    trials=tuple(trials),
-                )
-            )
-        return out
-
-    def task_of(self, dataset: str) -> str:
-        """``"classification"`` or ``"regression"`` for a data set of the study."""
-        task = self.datasets[dataset].task
-        return "classification" if is_classification(task) else "regression"
-
-
-def _hash(*parts: object) -> str:
-    return hashlib.sha256(json.dumps(parts, sort_keys=True).encode()).hexdigest()[:16]
-
-
-def _make_trial(study: Study, key: str, levels: dict) -> Trial:
-    fp = study.datasets[key].fingerprint
-    crit, depth, leaf = levels["criterion"], levels["max_depth"], levels["min_samples_leaf"]
-    inner, risk, rule = levels["inner_folds"], levels["prune_risk"], levels["rule"]
-    return Trial(
-        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk),
-        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk),
-        dataset=key,
-        criterion=crit,
-        max_depth=depth,
-        min_samples_leaf=leaf,
-        inner_folds=inner,
-        rule=rule,
-        prune_risk=risk,
-    )
-
-
-def _expand(study: Study):
-    for key in study.datasets:
-        levels = study.factors[study.task_of(key)]
-        for crit, depth, leaf, inner, risk, rule in itertools.product(
-            levels["criterion"],
-            levels["max_depth"],
-            levels["min_samples_leaf"],
-            levels["inner_folds"],
-            levels["prune_risk"],
-            levels["rule"],
-        ):
-            yield _make_trial(
-                study,
-                key,
-                {
-                    "criterion": crit,
-                    "max_depth": None if depth == "none" else depth,
-                    "min_samples_leaf": leaf,
-                    "inner_folds": inner,
-                    "rule": rule,
-                    "prune_risk": risk,
-                },
-            )
 
 
 class _Checker:
@@ -386,31 +130,31 @@ def _levels(check: _Checker, key: str, value: object) -> list:
 
 
 def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str) -> list:
+    """The levels of one factor for one task family, checked against the vocabulary."""
+    spec = _FACTOR_SPECS[name]
     for v in levels:
-        if name in ("criterion", "prune_risk"):
-            allowed = (_CRITERIA if name == "criterion" else _RISKS)[task]
-            what = "criterion" if name == "criterion" else "pruning risk"
+        if spec.kind == "choice":
+            allowed = spec.levels[task]
             if v not in allowed:
                 raise check.fail(
-                    key, f"{v!r} is not a {task} {what}; use one of {', '.join(allowed)}"
+                    key, f"{v!r} is not a {task} {spec.noun}; use one of {', '.join(allowed)}"
                 )
-        elif name == "max_depth":
+        elif spec.kind == "depth":
             if not (v == "none" or (_is_int(v) and v >= 1)):
                 raise check.fail(key, f'{v!r} is not a depth: use an integer >= 1 or "none"')
-        elif name == "min_samples_leaf":
-            if not (_is_int(v) and v >= 1):
-                raise check.fail(key, f"{v!r} is not a leaf size: use an integer >= 1")
-        elif name == "inner_folds":
-            if not (_is_int(v) and v >= 2):
-                raise check.fail(key, f"{v!r} is not a fold count: use an integer >= 2")
-        elif name == "rule":
+        elif spec.kind == "int":
+            if not (_is_int(v) and v >= spec.least):
+                raise check.fail(
+                    key, f"{v!r} is not a {spec.noun}: use an integer >= {spec.least}"
+                )
+        elif spec.kind == "rule":
             try:
                 parse_rule(v)
             except ValueError:
                 raise check.fail(
                     key, f'{v!r} is not a rule: use "min" or a k-SE rule like "1se", "0.5se"'
                 ) from None
-    if name == "rule":
+    if spec.kind == "rule":
         names = [parse_rule(v).name for v in levels]
         if len(set(names)) != len(names):
             raise check.fail(key, f"names one rule twice in {levels!r}")
@@ -435,7 +179,7 @@ def _datasets(
                     raise check.fail("datasets", "a dataset's manifest must be a file path")
                 manifest = os.path.normpath(base / item["manifest"])
                 try:
-                    entries = register_manifest(manifest)
+                    entries = read_manifest(manifest)
                 except DatasetError as err:
                     raise check.fail("datasets", str(err)) from None
                 names = [e.name for e in entries]
@@ -488,7 +232,16 @@ def _search(check: _Checker, doc: object, seed: int) -> SearchSpec:
     search_seed = doc.get("seed", seed)
     if not _is_int(search_seed) or search_seed < 0:
         raise check.fail("search.seed", "must be an integer >= 0")
-    raw = doc.get("space")
+    space = _search_space(check, doc.get("space"))
+    if sampler == "grid" and any(v[0] != "choices" for v in space.values()):
+        raise check.fail(
+            "search.sampler", "the grid sampler needs every space entry as a list of choices"
+        )
+    return SearchSpec(sampler, n, early, search_seed, space)
+
+
+def _search_space(check: _Checker, raw: object) -> dict:
+    """``[search.space]``: name -> ("choices", levels) or a numeric range."""
     if not isinstance(raw, dict) or not raw:
         raise check.fail("search.space", "needs a table of choices or ranges")
     space = {}
@@ -499,34 +252,28 @@ def _search(check: _Checker, doc: object, seed: int) -> SearchSpec:
         if isinstance(value, list):
             space[name] = ("choices", _levels(check, key, value))
         elif isinstance(value, dict):
-            if set(value) - {"low", "high", "log"} or not {"low", "high"} <= set(value):
-                raise check.fail(
-                    key, "a range is { low = ..., high = ... } with optional log = true"
-                )
-            low, high = value["low"], value["high"]
-            if name == "se":
-                if (
-                    not all(
-                        isinstance(v, (int, float)) and not isinstance(v, bool) for v in (low, high)
-                    )
-                    or not 0 <= low < high
-                ):
-                    raise check.fail(key, "needs numbers 0 <= low < high")
-                space[name] = ("float", float(low), float(high))
-            elif name in ("max_depth", "min_samples_leaf", "inner_folds"):
-                least = 2 if name == "inner_folds" else 1
-                if not (_is_int(low) and _is_int(high) and least <= low < high):
-                    raise check.fail(key, f"needs integers {least} <= low < high")
-                space[name] = ("int", low, high, bool(value.get("log", False)))
-            else:
-                raise check.fail(key, "takes a list of choices, not a range")
+            space[name] = _search_range(check, key, name, value)
         else:
             raise check.fail(key, "must be a list of choices or a { low, high } range")
-    if sampler == "grid" and any(v[0] != "choices" for v in space.values()):
-        raise check.fail(
-            "search.sampler", "the grid sampler needs every space entry as a list of choices"
-        )
-    return SearchSpec(sampler, n, early, search_seed, space)
+    return space
+
+
+def _search_range(check: _Checker, key: str, name: str, value: dict) -> tuple:
+    """One ``{ low, high, log }`` range of the search space."""
+    if set(value) - {"low", "high", "log"} or not {"low", "high"} <= set(value):
+        raise check.fail(key, "a range is { low = ..., high = ... } with optional log = true")
+    low, high = value["low"], value["high"]
+    if name == "se":
+        numbers = all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (low, high))
+        if not numbers or not 0 <= low < high:
+            raise check.fail(key, "needs numbers 0 <= low < high")
+        return ("float", float(low), float(high))
+    if name in ("max_depth", "min_samples_leaf", "inner_folds"):
+        least = _FACTOR_SPECS[name].least
+        if not (_is_int(low) and _is_int(high) and least <= low < high):
+            raise check.fail(key, f"needs integers {least} <= low < high")
+        return ("int", low, high, bool(value.get("log", False)))
+    raise check.fail(key, "takes a list of choices, not a range")
 
 
 def _check_space(check: _Checker, search: SearchSpec, task: str) -> None:
@@ -546,6 +293,10 @@ def _check_space(check: _Checker, search: SearchSpec, task: str) -> None:
 def parse_study(text: str, source: str = "<study>", base: Path | None = None) -> Study:
     """Validate a study file's text and load its data sets.
 
+    Three steps: pure validators of each section, then the data sets are loaded
+    (a manifest's data sets are registered here, and only here, so workers can load
+    them by name), then the checks that need the data (task families, fold counts).
+
     Parameters
     ----------
     text : str
@@ -553,7 +304,7 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     source : str
         Name used in messages (the file's path).
     base : Path, optional
-        Folder against which a relative ``database`` is resolved.
+        Folder against which a relative ``database`` and manifests are resolved.
 
     Returns
     -------
@@ -569,6 +320,42 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
         raise StudyError(f"{source}: not valid TOML: {err}") from None
+    top = _top_section(check, doc, source)
+    repeats, folds = _outer_section(check, doc.get("outer", {}))
+    factors_doc, per_task = _factors_section(check, doc.get("factors", {}))
+    search = _search_section(check, doc, top["seed"])
+    base = base or Path(".")
+    entries = _datasets(check, doc["datasets"], base)
+
+    loaded, specs = _load_datasets(check, entries)
+
+    tasks = sorted({family_of(d.task) for d in loaded.values()})
+    _check_tasks(check, tasks, per_task, search)
+    factors = {task: _task_levels(check, task, tasks, factors_doc, per_task) for task in tasks}
+    for key, data in loaded.items():
+        _check_folds(check, key, data, folds, factors, per_task)
+    database = top["database"]
+    return Study(
+        name=top["name"],
+        description=top["description"],
+        seed=top["seed"],
+        repeats=repeats,
+        folds=folds,
+        datasets=loaded,
+        dataset_specs=specs,
+        factors=factors,
+        text=text,
+        database=Path(os.path.normpath(base / database)) if database else None,
+        search=search,
+        time_limit=float(top["time_limit"]) if top["time_limit"] is not None else None,
+    )
+
+
+# ---- pure section validators -------------------------------------------------------------
+
+
+def _top_section(check: _Checker, doc: dict, source: str) -> dict:
+    """The top-level keys: ``name``, ``description``, ``seed``, ``time_limit``, ``database``."""
     for key in doc:
         if key not in _TOP_KEYS:
             raise check.fail(
@@ -596,8 +383,17 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     database = doc.get("database")
     if database is not None and (not isinstance(database, str) or not database.strip()):
         raise check.fail("database", "must be a file path")
+    return {
+        "name": name,
+        "description": description,
+        "seed": seed,
+        "time_limit": time_limit,
+        "database": database,
+    }
 
-    outer = doc.get("outer", {})
+
+def _outer_section(check: _Checker, outer: object) -> tuple[int, int]:
+    """``[outer]``: repeats and folds."""
     if not isinstance(outer, dict):
         raise check.fail("outer", "must be a table with repeats and folds")
     for key in outer:
@@ -608,13 +404,16 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         raise check.fail("outer.repeats", f"must be an integer >= 1; got {repeats!r}")
     if not _is_int(folds) or folds < 2:
         raise check.fail("outer.folds", f"must be an integer >= 2; got {folds!r}")
+    return repeats, folds
 
-    factors_doc = doc.get("factors", {})
+
+def _factors_section(check: _Checker, factors_doc: object) -> tuple[dict, dict]:
+    """``[factors]`` and its per-family tables: (common levels, family -> levels)."""
     if not isinstance(factors_doc, dict):
         raise check.fail("factors", "must be a table of factor levels")
     per_task = {}
     for key, value in factors_doc.items():
-        if key in ("classification", "regression"):
+        if key in FAMILIES:
             if not isinstance(value, dict):
                 raise check.fail(f"factors.{key}", "must be a table of factor levels")
             for sub in value:
@@ -628,27 +427,45 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
             raise check.fail(
                 f"factors.{key}", f"is not a factor; the factors are {', '.join(FACTORS)}"
             )
+    return factors_doc, per_task
 
-    search = _search(check, doc["search"], seed) if "search" in doc else None
-    if search is not None and "factors" in doc:
+
+def _search_section(check: _Checker, doc: dict, seed: int) -> SearchSpec | None:
+    """``[search]``, which excludes ``[factors]``."""
+    if "search" not in doc:
+        return None
+    search = _search(check, doc["search"], seed)
+    if "factors" in doc:
         raise check.fail(
             "factors",
             "a study with [search] takes its levels from [search.space]; remove [factors]",
         )
+    return search
 
-    base = base or Path(".")
-    entries = _datasets(check, doc["datasets"], base)
+
+# ---- loading the data sets ---------------------------------------------------------------
+
+
+def _load_datasets(check: _Checker, entries: list) -> tuple[dict, dict]:
+    """Load every data set (registering a manifest's first): key -> data, key -> spec."""
     loaded: dict[str, LoadedDataset] = {}
     specs: dict[str, tuple[str, dict, str | None]] = {}
     for key, ds_name, params, manifest in entries:
         try:
+            if manifest is not None:
+                register_manifest(manifest)
             loaded[key] = load_dataset(ds_name, **params)
         except DatasetError as err:
             raise check.fail("datasets", str(err)) from None
         specs[key] = (ds_name, params, manifest)
-    tasks = sorted(
-        {"classification" if is_classification(d.task) else "regression" for d in loaded.values()}
-    )
+    return loaded, specs
+
+
+# ---- checks that need the data -----------------------------------------------------------
+
+
+def _check_tasks(check: _Checker, tasks: list, per_task: dict, search: SearchSpec | None) -> None:
+    """Per-family tables need a data set of the family; a search needs one family."""
     for task in per_task:
         if task not in tasks:
             raise check.fail(f"factors.{task}", f"no {task} dataset in the study")
@@ -661,84 +478,70 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
             )
         _check_space(check, search, tasks[0])
 
-    factors: dict[str, dict[str, list]] = {}
-    for task in tasks:
-        levels = {}
-        for factor in FACTORS:
-            if factor in per_task.get(task, {}):
-                key, value = f"factors.{task}.{factor}", per_task[task][factor]
-            elif factor in factors_doc:
-                key, value = f"factors.{factor}", factors_doc[factor]
-            else:
-                key = f"factors.{factor}"
-                value = _DEFAULTS.get(task, {}).get(factor) or _DEFAULTS["common"][factor]
-            values = _levels(check, key, value)
-            if (
-                len(tasks) > 1
-                and factor in ("criterion", "prune_risk")
-                and key == f"factors.{factor}"
-            ):
-                # one list cannot suit both tasks' criteria and risks
-                bad = [
-                    v
-                    for v in values
-                    if v not in (_CRITERIA if factor == "criterion" else _RISKS)[task]
-                ]
-                if bad:
-                    raise check.fail(
-                        key,
-                        f"{bad[0]!r} does not fit the {task} datasets; with both tasks in one "
-                        f"study give {factor} in [factors.classification] and [factors.regression]",
-                    )
-            levels[factor] = _check_factor(check, key, factor, values, task)
-        factors[task] = levels
 
-    for key, data in loaded.items():
-        task = "classification" if is_classification(data.task) else "regression"
-        if len(data.y) < 2 * folds:
-            raise check.fail(
-                "outer.folds",
-                f"{folds} folds need at least {2 * folds} rows; dataset {key!r} has {len(data.y)}",
-            )
-        if task == "classification":
-            if data.smallest_class < folds:
-                labels, counts = np.unique(data.y, return_counts=True)
-                where = f"dataset {key!r}"
-                if data.info.file:
-                    where += f" (column {data.info.target!r} of {data.info.file})"
+def _task_levels(
+    check: _Checker, task: str, tasks: list, factors_doc: dict, per_task: dict
+) -> dict[str, list]:
+    """Every factor's levels for one task family: its own table, ``[factors]``, or the default."""
+    levels = {}
+    for factor in FACTORS:
+        if factor in per_task.get(task, {}):
+            key, value = f"factors.{task}.{factor}", per_task[task][factor]
+        elif factor in factors_doc:
+            key, value = f"factors.{factor}", factors_doc[factor]
+        else:
+            key, value = f"factors.{factor}", [_FACTOR_SPECS[factor].default[task]]
+        values = _levels(check, key, value)
+        spec = _FACTOR_SPECS[factor]
+        if len(tasks) > 1 and spec.kind == "choice" and key == f"factors.{factor}":
+            # one list cannot suit both families' criteria and risks
+            bad = [v for v in values if v not in spec.levels[task]]
+            if bad:
                 raise check.fail(
-                    "outer.folds",
-                    f"{folds} folds is more than the {data.smallest_class} rows of class "
-                    f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
+                    key,
+                    f"{bad[0]!r} does not fit the {task} datasets; with both tasks in one "
+                    f"study give {factor} in [factors.classification] and [factors.regression]",
                 )
-            # the inner CV runs on the outer-training part: about (folds-1)/folds of it
-            inner_rows = data.smallest_class * (folds - 1) // folds
-            inner_key = (
-                f"factors.{task}.inner_folds"
-                if "inner_folds" in per_task.get(task, {})
-                else "factors.inner_folds"
-            )
-            too_many = [k for k in factors[task]["inner_folds"] if k > inner_rows]
-            if too_many:
-                raise check.fail(
-                    inner_key,
-                    f"{too_many[0]} inner folds is more than the about {inner_rows} "
-                    f"rows of the smallest class of dataset {key!r} in an outer-training part",
-                )
-    return Study(
-        name=name,
-        description=description,
-        seed=seed,
-        repeats=repeats,
-        folds=folds,
-        datasets=loaded,
-        dataset_specs=specs,
-        factors=factors,
-        text=text,
-        database=Path(os.path.normpath(base / database)) if database else None,
-        search=search,
-        time_limit=float(time_limit) if time_limit is not None else None,
+        levels[factor] = _check_factor(check, key, factor, values, task)
+    return levels
+
+
+def _check_folds(
+    check: _Checker, key: str, data: LoadedDataset, folds: int, factors: dict, per_task: dict
+) -> None:
+    """Enough rows for the outer folds, and (classification) for the inner folds."""
+    task = family_of(data.task)
+    if len(data.y) < 2 * folds:
+        raise check.fail(
+            "outer.folds",
+            f"{folds} folds need at least {2 * folds} rows; dataset {key!r} has {len(data.y)}",
+        )
+    if task != CLASSIFICATION:
+        return
+    if data.smallest_class < folds:
+        labels, counts = np.unique(data.y, return_counts=True)
+        where = f"dataset {key!r}"
+        if data.info.file:
+            where += f" (column {data.info.target!r} of {data.info.file})"
+        raise check.fail(
+            "outer.folds",
+            f"{folds} folds is more than the {data.smallest_class} rows of class "
+            f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
+        )
+    # the inner CV runs on the outer-training part: about (folds-1)/folds of it
+    inner_rows = data.smallest_class * (folds - 1) // folds
+    inner_key = (
+        f"factors.{task}.inner_folds"
+        if "inner_folds" in per_task.get(task, {})
+        else "factors.inner_folds"
     )
+    too_many = [k for k in factors[task]["inner_folds"] if k > inner_rows]
+    if too_many:
+        raise check.fail(
+            inner_key,
+            f"{too_many[0]} inner folds is more than the about {inner_rows} "
+            f"rows of the smallest class of dataset {key!r} in an outer-training part",
+        )
 
 
 def load_study(path: str | Path) -> Study:

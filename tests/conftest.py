@@ -1,4 +1,4 @@
-"""Shared fixtures: a small conducted study whose results database several tests read."""
+"""Shared fixtures: small conducted studies whose results databases several tests read."""
 
 from __future__ import annotations
 
@@ -31,3 +31,41 @@ def small_db(tmp_path_factory):
     path = tmp_path_factory.mktemp("fixture") / "fixture.sqlite"
     conduct(parse_study(SMALL_STUDY), path, progress=Progress(0, io.StringIO()))
     return path
+
+
+MIXED_STUDY = """\
+name = "stats-unit"
+seed = 1
+datasets = ["iris", "wine", "breast_cancer", "diabetes"]
+[outer]
+repeats = 2
+folds = 3
+[factors]
+max_depth = ["none", 3]
+inner_folds = [3]
+rule = ["min", "1se"]
+[factors.classification]
+criterion = ["gini", "entropy"]
+prune_risk = ["error"]
+[factors.regression]
+criterion = ["squared_error"]
+prune_risk = ["squared_error"]
+"""
+
+
+@pytest.fixture(scope="session")
+def mixed_db(tmp_path_factory):
+    """A results database of three classification data sets and one regression set."""
+    path = tmp_path_factory.mktemp("mixed") / "r.sqlite"
+    conduct(parse_study(MIXED_STUDY), path, progress=Progress(0, io.StringIO()))
+    return path
+
+
+@pytest.fixture(scope="session")
+def mixed_folds(mixed_db):
+    """The fold rows of :func:`mixed_db`."""
+    from prunebench.results import load_folds
+    from prunebench.store import ResultStore
+
+    with ResultStore(mixed_db, readonly=True) as store:
+        return load_folds(store)

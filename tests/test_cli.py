@@ -61,3 +61,41 @@ def test_datasets_lists_every_kind_as_json():
     assert rows["twonorm"]["task"] == "binary" and rows["twonorm"]["params"]["n_samples"] == 1000
     table = CliRunner().invoke(main, ["datasets"]).output.splitlines()
     assert table[0].split()[:3] == ["name", "kind", "task"] and len(table) == len(rows) + 1
+
+
+@pytest.mark.parametrize(
+    "message, shown",
+    [
+        (
+            "r.sqlite holds several studies (a, b); pick one with study=...",
+            "pick one with --study ...",
+        ),
+        ("The 'fmt' parameter must be csv; use fmt=csv", "use --format csv"),
+        ("a seed=3 stays as it is", "a seed=3 stays as it is"),
+    ],
+)
+def test_library_keywords_are_shown_as_flags(message, shown):
+    from prunebench.cli import _as_flags
+
+    assert shown in _as_flags(message)
+
+
+@pytest.mark.parametrize(
+    "args",
+    [["--help"], ["sql", "--db", "missing.sqlite", "SELECT 1"], ["progress", "--db", "m.sqlite"]],
+)
+def test_light_commands_import_no_plotting_or_search_library(args, tmp_path):
+    # scikit-learn comes in through the package's __init__ until it loads estimators lazily;
+    # matplotlib and Optuna must wait for the commands that draw or search
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from prunebench.cli import main\n"
+        f"try:\n    main({args!r})\nexcept SystemExit:\n    pass\n"
+        "print(sorted(m for m in ('matplotlib', 'optuna', 'seaborn') if m in sys.modules))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path, check=True
+    )
+    assert out.stdout.strip().splitlines()[-1] == "[]"

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-import matplotlib.pyplot as plt
 import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from prunebench import plots, stats
+from prunebench import plots, ranks, results, stats
 from prunebench.cli import main
 from prunebench.store import ResultStore
 
@@ -15,7 +14,7 @@ from prunebench.store import ResultStore
 @pytest.fixture(scope="module")
 def data(small_db):
     with ResultStore(small_db, readonly=True) as store:
-        folds = stats.load_folds(store)
+        folds = results.load_folds(store)
         curves = plots.example_curves(store, folds)
     return folds, curves
 
@@ -23,7 +22,6 @@ def data(small_db):
 def test_pruning_curves_panels_band_and_markers(data):
     _, curves = data
     fig = plots.pruning_curves(curves, "ctx")
-    main_axes = [ax for ax in fig.axes if ax.get_ylabel().startswith("inner-CV")] or fig.axes[:1]
     assert len(fig.axes) == 4  # two panels, each with a tree-size axis
     first = fig.axes[0]
     assert first.get_xscale() == "log"
@@ -34,8 +32,9 @@ def test_pruning_curves_panels_band_and_markers(data):
     assert {"min rule", "1-SE rule"} <= set(labels)
     assert len(first.collections) == 1  # the ±1 SE band
     assert "tree size" in fig.axes[2].get_ylabel() or "tree size" in fig.axes[3].get_ylabel()
-    assert main_axes
-    plt.close(fig)
+    # the loss axis is the first panel's (the second shares it); its step is the fold's curve
+    assert [ax for ax in fig.axes if ax.get_ylabel().startswith("inner-CV")] == [first]
+    np.testing.assert_allclose(step.get_ydata(), one_fold.sort_values("alpha")["mean"])
 
 
 def test_difference_plot_has_one_interval_per_dataset_and_configuration(data):
@@ -54,7 +53,6 @@ def test_difference_plot_has_one_interval_per_dataset_and_configuration(data):
     assert zero  # the zero line
     assert [t.get_text() for t in ax.get_yticklabels()] == ["breast_cancer", "iris", "wine"]
     assert sum("pruned better" in t.get_text() for t in ax.texts) == 3  # verdicts
-    plt.close(fig)
 
 
 def test_size_against_error_facets_and_points(data):
@@ -65,7 +63,6 @@ def test_size_against_error_facets_and_points(data):
     for ax in visible:
         points = sum(len(c.get_offsets()) for c in ax.collections)
         assert points == 16 * 2  # every configuration, both arms
-    plt.close(fig)
 
 
 def test_heatmaps_cells(data):
@@ -75,18 +72,16 @@ def test_heatmaps_cells(data):
     assert len(heat) == 2
     # criterion x depth: 2 x 2 cells; rule x inner folds: 2 x 2 cells, each annotated
     assert all(len(ax.texts) == 4 for ax in heat)
-    plt.close(fig)
 
 
 def test_critical_difference_diagram_lists_every_configuration(data):
     folds, _ = data
-    ranked = stats.ranking(folds)[0]
+    ranked = ranks.ranking(folds)[0]
     fig = plots.critical_difference_diagram(ranked)
     ax = fig.axes[0]
     shown = min(15, len(ranked["table"]))  # the diagram names the best 15
     assert sum("(" in t.get_text() for t in ax.texts) == shown
     assert fig.bars_drawn >= 1  # at least one group of configurations not told apart
-    plt.close(fig)
 
 
 def test_alpha_by_rule_has_a_box_per_rule(data):
@@ -101,7 +96,16 @@ def test_alpha_by_rule_has_a_box_per_rule(data):
     keys = ["dataset", "criterion", "max_depth", "inner_folds", "repeat", "fold"]
     wide = pruned.pivot_table(index=keys, columns="rule", values="alpha")
     assert np.all(wide["1se"] >= wide["min"] - 1e-15)
-    plt.close(fig)
+
+
+def test_figures_leave_no_pyplot_state(data):
+    # the figures draw on their own canvas: pyplot (if anything imported it) holds none
+    import matplotlib.pyplot as plt
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    before = plt.get_fignums()
+    fig = plots.alpha_by_rule(data[0])
+    assert isinstance(fig.canvas, FigureCanvasAgg) and plt.get_fignums() == before
 
 
 def test_figures_command_writes_png_and_svg(small_db, tmp_path):

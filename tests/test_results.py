@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import sqlite3
 import subprocess
@@ -13,9 +14,12 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
-from prunebench import open_results
+from prunebench import open_results, results
 from prunebench.cli import main
+from prunebench.execute import Progress, conduct
 from prunebench.results import TABLES, VIEWS, progress_report
+from prunebench.store import ResultStore
+from prunebench.study import parse_study
 
 
 def _digest(path):
@@ -151,3 +155,98 @@ def test_progress_reads_while_conduct_writes(tmp_path):
     assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
     text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
     assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text
+
+
+def test_arm_means_match_a_hand_aggregation(mixed_db):
+    with ResultStore(mixed_db, readonly=True) as store:
+        study_id = store.query("SELECT study_id FROM studies")[0]["study_id"]
+        table = results.arm_means(store, study_id)
+    conn = sqlite3.connect(mixed_db)
+    assert len(table) == 4 * 2 * 2
+    for row in table.itertuples():
+        metric = "mse" if row.dataset == "diabetes" else "error"
+        expected = conn.execute(
+            f"SELECT AVG(f.{metric}) FROM folds f JOIN trials t USING (trial_id) "
+            "JOIN datasets d USING (dataset_id) WHERE d.name=? AND t.rule=? AND f.arm=?",
+            (row.dataset, row.rule, row.arm),
+        ).fetchone()[0]
+        assert row.value == pytest.approx(expected)
+
+
+@pytest.fixture(scope="module")
+def two_studies(mixed_db, tmp_path_factory):
+    import shutil
+
+    copy = tmp_path_factory.mktemp("two") / "two.sqlite"
+    shutil.copy(mixed_db, copy)
+    other = parse_study(
+        'name = "other-unit"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\n'
+        "folds = 3\n[factors]\ninner_folds = [3]\n"
+    )
+    conduct(other, copy, progress=Progress(0, io.StringIO()))
+    return copy
+
+
+@pytest.mark.parametrize("command", ["compare", "rank", "recommend", "progress"])
+def test_every_command_has_one_policy_for_which_study(two_studies, command):
+    several = CliRunner().invoke(main, [command, "--db", str(two_studies)])
+    assert several.exit_code == 2
+    assert several.output.strip() == (
+        f"error: {two_studies} holds several studies (stats-unit, other-unit); "
+        "pick one with --study ..."
+    )
+    missing = CliRunner().invoke(main, [command, "--db", str(two_studies), "--study", "nope"])
+    assert missing.exit_code == 2
+    assert "no study named 'nope'; it holds stats-unit, other-unit" in missing.output
+    named = CliRunner().invoke(main, [command, "--db", str(two_studies), "--study", "other-unit"])
+    assert named.exit_code == 0, named.output
+
+
+def test_a_named_study_is_the_one_read(two_studies):
+    named = CliRunner().invoke(
+        main, ["compare", "--db", str(two_studies), "--study", "other-unit", "--json"]
+    )
+    assert {r["dataset"] for r in json.loads(named.output)} == {"iris"}
+
+
+def test_resolve_study_names_keyword_parameters(two_studies):
+    with ResultStore(two_studies, readonly=True) as store:
+        with pytest.raises(results.QueryError, match=r"pick one with study=\.\.\."):
+            results.resolve_study(store)
+        assert results.resolve_study(store, "other-unit")["name"] == "other-unit"
+
+
+def test_load_folds_columns_and_types(small_db):
+    with ResultStore(small_db, readonly=True) as store:
+        folds = results.load_folds(store)
+    assert list(folds.columns[:9]) == [
+        "dataset",
+        "task",
+        "trial_id",
+        "criterion",
+        "max_depth",
+        "min_samples_leaf",
+        "inner_folds",
+        "rule",
+        "prune_risk",
+    ]
+    assert str(folds["max_depth"].dtype) == "Int64" and folds["max_depth"].isna().any()
+    assert folds["n_leaves"].dtype.kind == "i" and folds["error"].dtype.kind == "f"
+    # every finished trial's folds, once per arm: 16 configurations x 3 datasets x 6 folds
+    assert (
+        len(folds) == 48 * 6 * 2
+        and not folds.duplicated(["trial_id", "repeat", "fold", "arm"]).any()
+    )
+
+
+def test_conduct_table_pivots_the_arm_means(mixed_db):
+    with ResultStore(mixed_db, readonly=True) as store:
+        study_id = results.resolve_study(store)["study_id"]
+        long = results.arm_means(store, study_id)
+    wide = results.conduct_table(mixed_db, study_id)
+    row = long[(long["dataset"] == "diabetes") & (long["rule"] == "min")]
+    got = wide.loc[("diabetes", "min", "mse")]
+    assert got["pruned"] == pytest.approx(row.loc[row["arm"] == "pruned", "value"].item())
+    assert got["leaves_unpruned"] == pytest.approx(
+        row.loc[row["arm"] == "unpruned", "n_leaves"].item()
+    )

@@ -84,7 +84,9 @@ def test_search_finds_the_depth_two_tree(tmp_path):
         )
         .fetchone()[0]
     )
-    assert depth_one is None or depth_one > 0.1
+    # the seeded search tries depth 1 (its startup proposals are random over [1, 2]); one
+    # split cannot fit (a > 0.5) and (b > 0.3): about 0.15 of the rows stay wrong
+    assert depth_one is not None and depth_one > 0.1
 
 
 def test_early_stopping_is_reported_as_such(tmp_path):

@@ -2,10 +2,8 @@
 
 from __future__ import annotations
 
-import io
 import json
 import sqlite3
-import tomllib
 
 import numpy as np
 import pytest
@@ -14,41 +12,16 @@ from scipy import stats as sps
 
 from prunebench import stats
 from prunebench.cli import main
-from prunebench.execute import Progress, conduct
-from prunebench.store import ResultStore
-from prunebench.study import parse_study
-
-STUDY = """\
-name = "stats-unit"
-seed = 1
-datasets = ["iris", "wine", "breast_cancer", "diabetes"]
-[outer]
-repeats = 2
-folds = 3
-[factors]
-max_depth = ["none", 3]
-inner_folds = [3]
-rule = ["min", "1se"]
-[factors.classification]
-criterion = ["gini", "entropy"]
-prune_risk = ["error"]
-[factors.regression]
-criterion = ["squared_error"]
-prune_risk = ["squared_error"]
-"""
 
 
 @pytest.fixture(scope="module")
-def db(tmp_path_factory):
-    path = tmp_path_factory.mktemp("stats") / "r.sqlite"
-    conduct(parse_study(STUDY), path, progress=Progress(0, io.StringIO()))
-    return path
+def db(mixed_db):
+    return mixed_db
 
 
 @pytest.fixture(scope="module")
-def folds(db):
-    with ResultStore(db, readonly=True) as store:
-        return stats.load_folds(store)
+def folds(mixed_folds):
+    return mixed_folds
 
 
 # ---- the corrected resampled t ---------------------------------------------------------
@@ -289,84 +262,3 @@ def test_two_configurations_on_one_dataset_are_paired(folds):
     assert t.mean == pytest.approx((a - b).mean()) and t.n_folds == 6
     with pytest.raises(stats.StatsError, match="names 4 trials"):
         stats.compare_configurations(folds, "wine", {"criterion": "gini"}, {"rule": "min"})
-
-
-def test_ranking_tables_and_tests(folds):
-    results = stats.ranking(folds)
-    families = {r["family"]: r for r in results}
-    assert set(families) == {"classification", "regression"}
-    cls = families["classification"]
-    # 8 pruned configurations and 4 distinct unpruned trees, on 3 data sets
-    assert len(cls["table"]) == 12 and cls["datasets"] == ["breast_cancer", "iris", "wine"]
-    ranks = np.apply_along_axis(sps.rankdata, 1, cls["means"].to_numpy())
-    np.testing.assert_allclose(np.sort(cls["table"]["mean_rank"]), np.sort(ranks.mean(0)))
-    assert cls["cd"] == pytest.approx(stats.critical_difference(12, 3))
-    assert cls["table"]["not_worse"].iloc[0]
-    assert (cls["table"]["wins"] + cls["table"]["ties"] + cls["table"]["losses"] == 3).all()
-    # with one regression data set there is nothing to test across data sets
-    assert families["regression"]["friedman"] is None
-
-
-def test_rank_and_recommend_commands(db):
-    rank = CliRunner().invoke(main, ["rank", "--db", str(db)])
-    assert rank.exit_code == 0, rank.output
-    assert "Friedman chi2" in rank.output and "critical difference" in rank.output
-    assert max(len(line) for line in rank.output.splitlines()) <= 100
-    as_json = json.loads(CliRunner().invoke(main, ["rank", "--db", str(db), "--json"]).output)
-    assert {"mean_rank", "wins", "ties", "losses", "not_worse", "critical_difference"} <= set(
-        as_json[0]
-    )
-    rec = CliRunner().invoke(main, ["recommend", "--db", str(db)])
-    assert rec.exit_code == 0, rec.output
-    assert "starting point" in rec.output and "fairness and legal review" in rec.output
-    assert max(len(line) for line in rec.output.splitlines()) <= 100
-    out = json.loads(CliRunner().invoke(main, ["recommend", "--db", str(db), "--json"]).output)
-    for rec in out:
-        namespace: dict = {}
-        exec(rec["estimator"], namespace)  # the block is ready-to-use Python
-        model = namespace["model"]
-        assert model.get_params()["criterion"] == rec["config"]["criterion"]
-        fragment = tomllib.loads(rec["study_fragment"])["factors"][rec["family"]]
-        assert fragment["criterion"] == [rec["config"]["criterion"]]
-        assert rec["worst_regret"] >= rec["mean_regret"] >= 0
-
-
-def test_recommendation_takes_the_best_eligible_rank(folds):
-    for rec in stats.recommendation(folds):
-        table = rec["ranking"]["table"]
-        eligible = table[table["not_worse"]]
-        assert rec["mean_rank"] == eligible["mean_rank"].min()
-
-
-def test_several_studies_need_a_name(db, tmp_path):
-    import shutil
-
-    copy = tmp_path / "two.sqlite"
-    shutil.copy(db, copy)
-    other = parse_study(
-        'name = "other-unit"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\n'
-        "folds = 3\n[factors]\ninner_folds = [3]\n"
-    )
-    conduct(other, copy, progress=Progress(0, io.StringIO()))
-    result = CliRunner().invoke(main, ["compare", "--db", str(copy)])
-    assert result.exit_code == 2 and "pick one with --study" in result.output
-    named = CliRunner().invoke(
-        main, ["compare", "--db", str(copy), "--study", "other-unit", "--json"]
-    )
-    assert {r["dataset"] for r in json.loads(named.output)} == {"iris"}
-
-
-def test_arm_means_match_a_hand_aggregation(db):
-    with ResultStore(db, readonly=True) as store:
-        study_id = store.query("SELECT study_id FROM studies")[0]["study_id"]
-        table = stats.arm_means(store, study_id)
-    conn = sqlite3.connect(db)
-    assert len(table) == 4 * 2 * 2
-    for row in table.itertuples():
-        metric = "mse" if row.dataset == "diabetes" else "error"
-        expected = conn.execute(
-            f"SELECT AVG(f.{metric}) FROM folds f JOIN trials t USING (trial_id) "
-            "JOIN datasets d USING (dataset_id) WHERE d.name=? AND t.rule=? AND f.arm=?",
-            (row.dataset, row.rule, row.arm),
-        ).fetchone()[0]
-        assert row.value == pytest.approx(expected)

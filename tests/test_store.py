@@ -266,3 +266,18 @@ def test_a_lock_named_by_a_living_process_is_not_taken(tmp_path):
         holder.wait(timeout=60)
     with ResultStore(path, lock=True):  # its holder ended normally: free
         pass
+
+
+def test_schema_is_the_previous_releases(tmp_path):
+    # the metric columns and views are generated from the vocabulary; a database written
+    # by 0.1.0 (tests/fixtures/previous_release.sqlite) must see the very same schema
+    import re
+    from pathlib import Path
+
+    def schema(path):
+        rows = sqlite3.connect(path).execute("SELECT type, name, sql FROM sqlite_master")
+        return sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
+
+    ResultStore(tmp_path / "new.sqlite").close()
+    old = Path(__file__).with_name("fixtures") / "previous_release.sqlite"
+    assert schema(tmp_path / "new.sqlite") == schema(old)

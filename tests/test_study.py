@@ -197,3 +197,31 @@ def test_example_studies_are_valid():
     for f in files:
         study = load_study(f)
         assert study.trials() or study.search is not None
+
+
+def test_friedman_mse_is_a_regression_criterion_a_study_can_sweep(tmp_path):
+    # the pruning engine handles friedman_mse (its impurity is the node's squared error);
+    # studies now accept it too, and its trees are grown, pruned and stored
+    import io
+    import sqlite3
+
+    from prunebench.execute import Progress, conduct
+
+    study = parse_study(
+        'name = "fmse"\nseed = 1\ndatasets = ["diabetes"]\n[outer]\nrepeats = 1\nfolds = 3\n'
+        '[factors]\ncriterion = ["squared_error", "friedman_mse"]\ninner_folds = [3]\n'
+    )
+    assert study.factors["regression"]["criterion"] == ["squared_error", "friedman_mse"]
+    db = tmp_path / "r.sqlite"
+    summary = conduct(study, db, progress=Progress(0, io.StringIO()))
+    assert (summary.done, summary.failed) == (2, 0)
+    rows = sqlite3.connect(db).execute(
+        "SELECT t.criterion, COUNT(*), MIN(f.mse) FROM folds f JOIN trials t USING (trial_id) "
+        "WHERE f.arm = 'pruned' GROUP BY t.criterion"
+    )
+    counts = {c: (n, m) for c, n, m in rows}
+    assert counts["friedman_mse"][0] == 3 and counts["friedman_mse"][1] > 0
+    with pytest.raises(StudyError, match="'friedman_mse' is not a classification criterion"):
+        parse_study(
+            'name = "x"\nseed = 1\ndatasets = ["iris"]\n[factors]\ncriterion = ["friedman_mse"]\n'
+        )

@@ -9,15 +9,10 @@ from functools import lru_cache
 
 import numpy as np
 
-from ..exceptions import PrunebenchError
+from ..exceptions import DatasetError
 
 TASKS = ("binary", "multiclass", "regression")
 
-
-class DatasetError(PrunebenchError):
-    """A data set is unknown, or its data cannot be used."""
-
-    exit_code = 2
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,251 @@
+"""A study's model: the validated :class:`Study`, its trials and trial groups.
+
+:mod:`prunebench.study` builds a :class:`Study` from a study file; a study expands
+into :class:`Trial` objects (one configuration on one data set), grouped into
+:class:`TrialGroup` objects that share every tree fit.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .datasets import LoadedDataset
+from .vocabulary import factor_names, family_of
+
+__all__ = ["FACTORS", "SearchSpec", "Study", "Trial", "TrialGroup"]
+
+#: the factor names, in configuration order
+FACTORS = tuple(factor_names())
+
+
+@dataclass(frozen=True)
+class Trial:
+    """One configuration on one data set.
+
+    Attributes
+    ----------
+    trial_id : str
+        Deterministic id from the study name, the data set's fingerprint and the levels.
+    group_id : str
+        Id of the trials that share every tree fit (they differ only in ``rule``).
+    dataset : str
+        The data set's key in the study (its name, or name plus parameters).
+    criterion, max_depth, min_samples_leaf, inner_folds, rule, prune_risk
+        The levels; ``max_depth`` is None for unlimited.
+    """
+
+    trial_id: str
+    group_id: str
+    dataset: str
+    criterion: str
+    max_depth: int | None
+    min_samples_leaf: int
+    inner_folds: int
+    rule: str
+    prune_risk: str
+
+    def levels(self) -> dict:
+        """The factor levels as a dict."""
+        return {f: getattr(self, f) for f in FACTORS}
+
+
+@dataclass(frozen=True)
+class TrialGroup:
+    """Trials that share every tree fit: same data set and levels but the rule."""
+
+    group_id: str
+    dataset: str
+    criterion: str
+    max_depth: int | None
+    min_samples_leaf: int
+    inner_folds: int
+    prune_risk: str
+    trials: tuple[Trial, ...]
+
+    @classmethod
+    def of(cls, trials: list[Trial]) -> TrialGroup:
+        """The group of trials that share every tree fit (the first one's levels)."""
+        t = trials[0]
+        return cls(
+            group_id=t.group_id,
+            dataset=t.dataset,
+            criterion=t.criterion,
+            max_depth=t.max_depth,
+            min_samples_leaf=t.min_samples_leaf,
+            inner_folds=t.inner_folds,
+            prune_risk=t.prune_risk,
+            trials=tuple(trials),
+        )
+
+    @property
+    def rules(self) -> list[str]:
+        """The rules of the group's trials."""
+        return [t.rule for t in self.trials]
+
+
+@dataclass(frozen=True)
+class SearchSpec:
+    """A search over configurations instead of the full grid.
+
+    Attributes
+    ----------
+    sampler : {"tpe", "random", "grid"}
+    configurations : int
+        Configurations to evaluate (each on every data set of the study).
+    early_stopping : bool
+        Stop a configuration that is clearly poor after a few data sets (Optuna's
+        median pruner; "early stopping" here, so it is not confused with tree pruning).
+    seed : int
+    space : dict
+        Name -> ``("choices", [...])``, ``("int", low, high, log)`` or
+        ``("float", low, high)``; names are ``criterion``, ``max_depth`` ("none" allowed
+        among choices), ``min_samples_leaf``, ``inner_folds``, ``se`` (the k of the
+        k-SE rule, a float) and ``prune_risk``.
+    """
+
+    sampler: str
+    configurations: int
+    early_stopping: bool
+    seed: int
+    space: dict
+
+
+@dataclass
+class Study:
+    """A validated study.
+
+    Attributes
+    ----------
+    name, description : str
+    seed : int
+    repeats, folds : int
+        The outer scheme.
+    datasets : dict
+        Study key -> :class:`~prunebench.datasets.LoadedDataset`.
+    dataset_specs : dict
+        Study key -> (registry name, parameters, manifest path or None), for workers
+        that load by name.
+    factors : dict
+        Task ("classification"/"regression") -> factor -> levels.
+    text : str
+        The study file's text.
+    path : Path or None
+    database : Path or None
+        From the file, resolved against its folder.
+    search : SearchSpec or None
+        The ``[search]`` section, when the study searches instead of sweeping.
+    time_limit : float or None
+        Seconds each trial group may take (``time_limit``); a group past it is stopped
+        and its trials are stored as failed with the reason.
+    """
+
+    name: str
+    description: str
+    seed: int
+    repeats: int
+    folds: int
+    datasets: dict[str, LoadedDataset]
+    dataset_specs: dict[str, tuple[str, dict, str | None]]
+    factors: dict[str, dict[str, list]]
+    text: str
+    path: Path | None = None
+    database: Path | None = None
+    search: SearchSpec | None = None
+    time_limit: float | None = None
+    _trials: list[Trial] = field(default_factory=list, repr=False)
+
+    @property
+    def text_hash(self) -> str:
+        """SHA-256 of the study file's text."""
+        return hashlib.sha256(self.text.encode()).hexdigest()
+
+    @property
+    def study_id(self) -> str:
+        """Deterministic id of the study: a hash of its name."""
+        return hashlib.sha256(f"study:{self.name}".encode()).hexdigest()[:16]
+
+    @property
+    def outer_scheme(self) -> str:
+        """The outer CV scheme, e.g. ``"10x10"`` (repeats x folds)."""
+        return f"{self.repeats}x{self.folds}"
+
+    def trials(self) -> list[Trial]:
+        """Every trial: data sets x factor levels, in a fixed order (none for a search)."""
+        if not self._trials and self.search is None:
+            self._trials = list(_expand(self))
+        return self._trials
+
+    def trial_group(self, dataset: str, levels: dict) -> TrialGroup:
+        """The one-trial group of a configuration on a data set (used by searches).
+
+        Parameters
+        ----------
+        dataset : str
+            A data set key of the study.
+        levels : dict
+            ``criterion``, ``max_depth`` (None = unlimited), ``min_samples_leaf``,
+            ``inner_folds``, ``rule``, ``prune_risk``.
+        """
+        trial = _make_trial(self, dataset, levels)
+        return TrialGroup.of([trial])
+
+    def groups(self) -> list[TrialGroup]:
+        """The trials grouped by shared tree fits, in a fixed order."""
+        groups: dict[str, list[Trial]] = {}
+        for trial in self.trials():
+            groups.setdefault(trial.group_id, []).append(trial)
+        return [TrialGroup.of(trials) for trials in groups.values()]
+
+    def task_of(self, dataset: str) -> str:
+        """``"classification"`` or ``"regression"`` for a data set of the study."""
+        return family_of(self.datasets[dataset].task)
+
+
+def _hash(*parts: object) -> str:
+    return hashlib.sha256(json.dumps(parts, sort_keys=True).encode()).hexdigest()[:16]
+
+
+def _make_trial(study: Study, key: str, levels: dict) -> Trial:
+    fp = study.datasets[key].fingerprint
+    crit, depth, leaf = levels["criterion"], levels["max_depth"], levels["min_samples_leaf"]
+    inner, risk, rule = levels["inner_folds"], levels["prune_risk"], levels["rule"]
+    return Trial(
+        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk),
+        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk),
+        dataset=key,
+        criterion=crit,
+        max_depth=depth,
+        min_samples_leaf=leaf,
+        inner_folds=inner,
+        rule=rule,
+        prune_risk=risk,
+    )
+
+
+def _expand(study: Study):
+    for key in study.datasets:
+        levels = study.factors[study.task_of(key)]
+        for crit, depth, leaf, inner, risk, rule in itertools.product(
+            levels["criterion"],
+            levels["max_depth"],
+            levels["min_samples_leaf"],
+            levels["inner_folds"],
+            levels["prune_risk"],
+            levels["rule"],
+        ):
+            yield _make_trial(
+                study,
+                key,
+                {
+                    "criterion": crit,
+                    "max_depth": None if depth == "none" else depth,
+                    "min_samples_leaf": leaf,
+                    "inner_folds": inner,
+                    "rule": rule,
+                    "prune_risk": risk,
+                },
+            )

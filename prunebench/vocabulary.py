@@ -1,0 +1,300 @@
+"""The names prunebench speaks in, declared once: task families, factors, metrics, criteria.
+
+Every other module takes these names from here; this module imports nothing of
+the package, so anything may import it.  Adding a metric is one entry in
+:data:`METRICS` plus its computation in :mod:`prunebench.evaluate`: the results
+database's columns and views, the statistics, the command line and the exports
+follow from the entry.
+
+The registries are plain dicts read when they are used (never copied at import
+time), so a test can add a throw-away entry with ``monkeypatch.setitem``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, fields
+
+__all__ = [
+    "CLASSIFICATION",
+    "CRITERIA",
+    "DEFAULT_METRIC",
+    "FACTORS",
+    "FAMILIES",
+    "METRICS",
+    "PRUNE_RISKS",
+    "REGRESSION",
+    "Configuration",
+    "Factor",
+    "Metric",
+    "config_label",
+    "default_metric",
+    "factor_names",
+    "family_of",
+    "growth_factors",
+    "higher_is_better",
+    "metric_names",
+    "prune_risk_names",
+]
+
+# ---- task families ---------------------------------------------------------------------
+
+CLASSIFICATION = "classification"
+REGRESSION = "regression"
+#: the task families, in the order results are reported
+FAMILIES = (CLASSIFICATION, REGRESSION)
+
+
+def family_of(task: str) -> str:
+    """The task family of a data set's task (``binary``, ``multiclass``, ``regression``).
+
+    A family name is its own family, so ``family_of("classification")`` is
+    ``"classification"``.
+    """
+    return REGRESSION if task == REGRESSION else CLASSIFICATION
+
+
+# ---- criteria and pruning risks --------------------------------------------------------
+
+#: growing criteria a study may name, per family (scikit-learn's names)
+CRITERIA: dict[str, tuple[str, ...]] = {
+    CLASSIFICATION: ("gini", "entropy", "log_loss"),
+    REGRESSION: ("squared_error", "absolute_error", "poisson", "friedman_mse"),
+}
+#: risks R(t) the weakest-link pruning can use, per family
+PRUNE_RISKS: dict[str, tuple[str, ...]] = {
+    CLASSIFICATION: ("error", "impurity"),
+    REGRESSION: ("squared_error", "impurity"),
+}
+
+
+def prune_risk_names() -> tuple[str, ...]:
+    """Every pruning risk of any family, each once, classification's first."""
+    return tuple(dict.fromkeys(r for family in FAMILIES for r in PRUNE_RISKS[family]))
+
+
+# ---- factors ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Factor:
+    """One factor a study sweeps.
+
+    Attributes
+    ----------
+    name : str
+        Its key in a study file and its column in ``trials``.
+    kind : str
+        ``"choice"`` (a name from ``levels``), ``"int"`` (an integer >= ``least``),
+        ``"depth"`` (an integer >= 1 or ``"none"``) or ``"rule"`` (``"min"`` or a k-SE rule).
+    default : dict
+        Family -> the level a study gets when it does not name the factor.
+    changes_tree : bool
+        Whether the factor changes the grown tree ``T_max`` (trials that differ only
+        in factors that do not can share tree fits).
+    noun : str
+        What one level is called in messages ("a leaf size", "a pruning risk").
+    levels : dict or None
+        Family -> allowed levels, for ``"choice"`` factors.
+    least : int
+        Smallest level of an ``"int"`` factor.
+    """
+
+    name: str
+    kind: str
+    default: Mapping[str, object]
+    changes_tree: bool
+    noun: str
+    levels: Mapping[str, tuple[str, ...]] | None = None
+    least: int = 1
+
+
+def _every_family(level: object) -> dict:
+    return {CLASSIFICATION: level, REGRESSION: level}
+
+
+#: the factors of a study, in the order of a configuration
+FACTORS: dict[str, Factor] = {
+    f.name: f
+    for f in (
+        Factor(
+            "criterion",
+            "choice",
+            {CLASSIFICATION: "gini", REGRESSION: "squared_error"},
+            True,
+            "criterion",
+            CRITERIA,
+        ),
+        Factor("max_depth", "depth", _every_family("none"), True, "depth"),
+        Factor("min_samples_leaf", "int", _every_family(1), True, "leaf size", least=1),
+        Factor("inner_folds", "int", _every_family(10), False, "fold count", least=2),
+        Factor("rule", "rule", _every_family("1se"), False, "rule"),
+        Factor(
+            "prune_risk",
+            "choice",
+            {CLASSIFICATION: "error", REGRESSION: "squared_error"},
+            False,
+            "pruning risk",
+            PRUNE_RISKS,
+        ),
+    )
+}
+
+
+def factor_names() -> list[str]:
+    """The factor names, in configuration order."""
+    return list(FACTORS)
+
+
+def growth_factors() -> list[str]:
+    """The factors that change the grown tree (an unpruned tree is one level of each)."""
+    return [f.name for f in FACTORS.values() if f.changes_tree]
+
+
+# ---- metrics ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Metric:
+    """One test metric stored for every outer fold and arm.
+
+    Attributes
+    ----------
+    name : str
+        Its column in ``folds`` and its name on the command line.
+    family : str
+        ``"classification"`` or ``"regression"``.
+    higher_is_better : bool
+        False for a loss.
+    margin : float
+        The default margin of practical equivalence, in the metric's units, or as a
+        share of the reference loss when ``relative``.
+    relative : bool
+        Whether ``margin`` is relative (losses whose scale depends on the data set).
+    """
+
+    name: str
+    family: str
+    higher_is_better: bool
+    margin: float
+    relative: bool = False
+
+
+#: every stored metric, in column order
+METRICS: dict[str, Metric] = {
+    m.name: m
+    for m in (
+        Metric("error", CLASSIFICATION, False, 0.01),
+        Metric("accuracy", CLASSIFICATION, True, 0.01),
+        Metric("balanced_accuracy", CLASSIFICATION, True, 0.01),
+        Metric("log_loss", CLASSIFICATION, False, 0.02),
+        Metric("brier", CLASSIFICATION, False, 0.01),
+        Metric("mse", REGRESSION, False, 0.01, relative=True),
+        Metric("mae", REGRESSION, False, 0.01, relative=True),
+        Metric("r2", REGRESSION, True, 0.01),
+    )
+}
+#: the metric statistics use when none is named, per family
+DEFAULT_METRIC = {CLASSIFICATION: "error", REGRESSION: "mse"}
+
+
+def metric_names(family: str | None = None) -> list[str]:
+    """The stored metrics, in column order; only one family's when ``family`` is given."""
+    return [m.name for m in METRICS.values() if family is None or m.family == family]
+
+
+def default_metric(task: str) -> str:
+    """``error`` for classification tasks, ``mse`` for regression."""
+    return DEFAULT_METRIC[family_of(task)]
+
+
+def higher_is_better(metric: str) -> bool:
+    """Whether larger values of a metric are better (False for a loss)."""
+    return METRICS[metric].higher_is_better
+
+
+# ---- configurations --------------------------------------------------------------------
+
+_SHORT = {
+    "entropy": "entr",
+    "log_loss": "logl",
+    "squared_error": "sq",
+    "friedman_mse": "fmse",
+    "absolute_error": "abs",
+    "poisson": "pois",
+    "error": "err",
+    "impurity": "imp",
+    "gini": "gini",
+}
+
+
+def _plain(value: object) -> object:
+    """None for a missing level (None, NaN, pandas' NA), the value otherwise."""
+    if value is None:
+        return None
+    try:
+        if value != value or (isinstance(value, float) and math.isnan(value)):
+            return None
+    except TypeError:  # pandas.NA refuses to say whether it equals itself
+        return None
+    return value
+
+
+@dataclass(frozen=True)
+class Configuration:
+    """One configuration: the level of every factor.
+
+    ``rule == "unpruned"`` names the unpruned tree of the growth levels; its
+    ``inner_folds`` and ``prune_risk`` are None.  ``max_depth`` None is unlimited.
+    """
+
+    criterion: str
+    max_depth: int | None
+    min_samples_leaf: int
+    inner_folds: int | None
+    rule: str
+    prune_risk: str | None
+
+    @classmethod
+    def of(cls, levels) -> Configuration:
+        """The configuration of a mapping or row with the factor names (missing = None)."""
+        if isinstance(levels, Configuration):
+            return levels
+        if isinstance(levels, tuple):
+            return cls(*(_plain(v) for v in levels))
+        return cls(**{f.name: _plain(levels[f.name]) for f in fields(cls)})
+
+    @property
+    def pruned(self) -> bool:
+        """Whether this is a pruned configuration (not an unpruned tree)."""
+        return self.rule != "unpruned"
+
+    def levels(self) -> dict:
+        """The levels as a dict, in factor order."""
+        return {f.name: getattr(self, f.name) for f in fields(self)}
+
+    def key(self) -> tuple:
+        """The levels as a plain tuple in factor order (a table's column key)."""
+        return tuple(getattr(self, f.name) for f in fields(self))
+
+    def unpruned(self) -> Configuration:
+        """The unpruned tree with the same growth levels."""
+        return Configuration(
+            self.criterion, self.max_depth, self.min_samples_leaf, None, "unpruned", None
+        )
+
+    def label(self) -> str:
+        """A short label, e.g. ``"entr d=none l=5 k=10 1se err"``."""
+        depth = "none" if self.max_depth is None else int(self.max_depth)
+        criterion = _SHORT.get(self.criterion, self.criterion)
+        head = f"{criterion} d={depth} l={int(self.min_samples_leaf)}"
+        if not self.pruned:
+            return f"{head} unpruned"
+        risk = _SHORT.get(self.prune_risk, self.prune_risk)
+        return f"{head} k={int(self.inner_folds)} {self.rule} {risk}"
+
+
+def config_label(config) -> str:
+    """A short label of a configuration given as a :class:`Configuration`, tuple or mapping."""
+    return Configuration.of(config).label()

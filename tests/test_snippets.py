@@ -1,0 +1,109 @@
+"""Tests of the code a recommendation prints (prunebench.snippets)."""
+
+from __future__ import annotations
+
+import json
+import tomllib
+
+import pandas as pd
+import pytest
+
+from prunebench import PrunedTreeClassifier, PrunedTreeRegressor
+from prunebench.snippets import (
+    CAUTION,
+    estimator_block,
+    estimator_for,
+    recommendation_records,
+    study_fragment,
+)
+from prunebench.study import parse_study
+
+PRUNED = {
+    "criterion": "entropy",
+    "max_depth": 4.0,  # as it comes out of a table whose depth column has gaps
+    "min_samples_leaf": 5,
+    "inner_folds": 10,
+    "rule": "0.5se",
+    "prune_risk": "impurity",
+}
+UNPRUNED = {**PRUNED, "max_depth": None, "inner_folds": None, "rule": "unpruned"}
+
+
+def _model(block: str):
+    namespace: dict = {}
+    exec(block, namespace)
+    return namespace["model"]
+
+
+def test_estimator_block_builds_the_recommended_pruned_tree():
+    model = _model(estimator_block({"family": "classification", "config": PRUNED}))
+    assert isinstance(model, PrunedTreeClassifier)
+    params = model.get_params()
+    assert (params["criterion"], params["max_depth"], params["min_samples_leaf"]) == (
+        "entropy",
+        4,
+        5,
+    )
+    assert (params["cv"], params["rule"], params["prune_risk"]) == (10, "0.5se", "impurity")
+
+
+def test_an_unpruned_winner_is_a_plain_scikit_learn_tree():
+    from sklearn.tree import DecisionTreeRegressor
+
+    rec = {"family": "regression", "config": {**UNPRUNED, "criterion": "squared_error"}}
+    block = estimator_block(rec)
+    model = _model(block)
+    assert type(model) is DecisionTreeRegressor and model.max_depth is None
+    assert block.endswith("# no pruning won")
+
+
+def test_study_fragment_is_a_factors_table_a_study_accepts():
+    fragment = study_fragment({"family": "classification", "config": PRUNED})
+    levels = tomllib.loads(fragment)["factors"]["classification"]
+    assert levels == {
+        "criterion": ["entropy"],
+        "max_depth": [4],
+        "min_samples_leaf": [5],
+        "inner_folds": [10],
+        "rule": ["0.5se"],
+        "prune_risk": ["impurity"],
+    }
+    study = parse_study(f'name = "f"\nseed = 1\ndatasets = ["iris"]\n{fragment}\n')
+    assert len(study.trials()) == 1 and study.trials()[0].max_depth == 4
+    growth_only = tomllib.loads(study_fragment({"family": "classification", "config": UNPRUNED}))
+    assert set(growth_only["factors"]["classification"]) == {
+        "criterion",
+        "max_depth",
+        "min_samples_leaf",
+    }
+    assert growth_only["factors"]["classification"]["max_depth"] == ["none"]
+
+
+@pytest.mark.parametrize(
+    "task, estimator",
+    [
+        ("binary", PrunedTreeClassifier),
+        ("multiclass", PrunedTreeClassifier),
+        ("regression", PrunedTreeRegressor),
+    ],
+)
+def test_estimator_for_a_task(task, estimator):
+    assert estimator_for(task) is estimator
+
+
+def test_recommendation_records_are_json_with_code_and_caution():
+    rec = {
+        "family": "classification",
+        "metric": "error",
+        "config": PRUNED,
+        "mean_rank": 1.5,
+        "mean_leaves": 6.0,
+        "mean_regret": 0.01,
+        "worst_regret": 0.03,
+        "regret": pd.DataFrame({"dataset": ["iris"], "regret": [0.01]}),
+    }
+    (record,) = json.loads(json.dumps(recommendation_records([rec]), default=str))
+    assert record["regret"] == [{"dataset": "iris", "regret": 0.01}]
+    assert record["caution"] == "Caution: " + CAUTION
+    assert _model(record["estimator"]).get_params()["rule"] == "0.5se"
+    assert tomllib.loads(record["study_fragment"])["factors"]["classification"]["rule"] == ["0.5se"]

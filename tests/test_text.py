@@ -1,0 +1,65 @@
+"""Tests of the plain-text tables the command line prints (prunebench.text)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pandas as pd
+
+from prunebench.execute import ConductSummary
+from prunebench.study import parse_study
+from prunebench.text import conduct_text, plan_text, progress_text
+
+
+def test_progress_text_shows_counts_eta_and_failures():
+    report = {
+        "study": "s",
+        "done": 3,
+        "failed": 1,
+        "pending": 6,
+        "total": 10,
+        "rate_per_minute": 2.0,
+        "eta": "3m00s",
+        "last_finished": None,
+        "errors": ["ValueError: boom"],
+    }
+    lines = progress_text(report).splitlines()
+    assert lines[0] == (
+        "study 's': 3 done, 1 failed, 6 pending of 10 trials; 2.0 trials/min; ETA 3m00s; "
+        "last finished -"
+    )
+    assert lines[1:] == ["  recent failure: ValueError: boom"]
+
+
+def test_conduct_text_pivots_nothing_when_nothing_finished():
+    summary = ConductSummary(database=Path("r.sqlite"), total=4, failed=4, errors=["e1"])
+    empty = pd.DataFrame(columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned"])
+    assert conduct_text(summary, empty).splitlines() == [
+        "0 trials done, 4 failed, 0 already finished, of 4; 0.0 s; results in r.sqlite",
+        "  failed: e1",
+    ]
+
+
+def test_conduct_text_has_one_row_per_dataset_rule_and_metric():
+    summary = ConductSummary(database=Path("r.sqlite"), total=2, done=2)
+    table = pd.DataFrame(
+        {"unpruned": [0.1], "pruned": [0.08], "leaves_unpruned": [12.0], "leaves_pruned": [4.0]},
+        index=pd.MultiIndex.from_tuples([("iris", "1se", "error")]),
+    )
+    lines = conduct_text(summary, table).splitlines()
+    row = next(line for line in lines if line.startswith("iris"))
+    assert row.split() == ["iris", "1se", "error", "0.1000", "0.0800", "12.0", "4.0"]
+    assert lines[-1].startswith("next: prunebench compare --db r.sqlite")
+
+
+def test_plan_text_of_a_search_lists_its_space():
+    study = parse_study(
+        'name = "p"\nseed = 1\ndatasets = ["iris"]\n[search]\nsampler = "random"\n'
+        "configurations = 4\n[search.space]\nmax_depth = [1, 2]\n"
+    )
+    text = plan_text(study, [], Path("p.sqlite"), 2)
+    assert text.splitlines() == [
+        "study 'p': a search (random sampler, 4 configurations, early stopping on, seed 1)",
+        "  max_depth: choices [1, 2]",
+        "each configuration runs on 1 datasets: iris; outer CV 10 x 10",
+    ]

@@ -1,0 +1,38 @@
+"""Tests of a study's trials and trial groups (prunebench.trials)."""
+
+from __future__ import annotations
+
+from prunebench.study import parse_study
+from prunebench.trials import TrialGroup
+
+STUDY = """\
+name = "trials-unit"
+seed = 4
+datasets = ["iris", "wine"]
+[factors]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 3]
+inner_folds = [3, 5]
+rule = ["min", "1se"]
+"""
+
+
+def test_groups_partition_the_trials_by_everything_but_the_rule():
+    study = parse_study(STUDY)
+    trials, groups = study.trials(), study.groups()
+    assert len(trials) == 2 * 2 * 2 * 2 * 2 and len(groups) == len(trials) // 2
+    assert sorted(t.trial_id for g in groups for t in g.trials) == sorted(
+        t.trial_id for t in trials
+    )
+    for g in groups:
+        assert g.rules == ["min", "1se"]
+        levels = {(t.dataset, t.criterion, t.max_depth, t.inner_folds) for t in g.trials}
+        assert levels == {(g.dataset, g.criterion, g.max_depth, g.inner_folds)}
+    assert len({t.trial_id for t in trials}) == len(trials)
+
+
+def test_a_search_configuration_is_a_one_trial_group_with_the_sweeps_ids():
+    study = parse_study(STUDY)
+    swept = next(t for t in study.trials() if t.rule == "1se" and t.max_depth is None)
+    group = study.trial_group(swept.dataset, swept.levels())
+    assert group == TrialGroup.of([swept]) and group.trials[0].trial_id == swept.trial_id

@@ -1,0 +1,162 @@
+"""Tests of the vocabulary (prunebench.vocabulary): names declared once, and a metric added."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import sqlite3
+
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from prunebench import evaluate, vocabulary
+from prunebench.cli import main
+from prunebench.execute import Progress, conduct
+from prunebench.study import parse_study
+from prunebench.vocabulary import (
+    CLASSIFICATION,
+    REGRESSION,
+    Configuration,
+    Metric,
+    config_label,
+    default_metric,
+    family_of,
+    growth_factors,
+    higher_is_better,
+    metric_names,
+)
+
+
+@pytest.mark.parametrize(
+    "task, family",
+    [
+        ("binary", CLASSIFICATION),
+        ("multiclass", CLASSIFICATION),
+        ("regression", REGRESSION),
+        (CLASSIFICATION, CLASSIFICATION),
+    ],
+)
+def test_family_of(task, family):
+    assert family_of(task) == family
+
+
+def test_metric_names_are_the_stored_columns_in_order(small_db):
+    columns = [r[1] for r in sqlite3.connect(small_db).execute("PRAGMA table_info(folds)")]
+    stored = columns[columns.index("test_fingerprint") + 1 : columns.index("n_leaves")]
+    assert stored == metric_names()
+    assert metric_names(REGRESSION) == ["mse", "mae", "r2"]
+    assert (default_metric("binary"), default_metric("regression")) == ("error", "mse")
+    assert {m for m in metric_names() if higher_is_better(m)} == {
+        "accuracy",
+        "balanced_accuracy",
+        "r2",
+    }
+
+
+def test_margins_of_practical_equivalence():
+    # DESIGN.md: 0.01 of error rate, 0.01 Brier, 0.02 log loss, 1% of the loss for MSE
+    m = vocabulary.METRICS
+    assert (m["error"].margin, m["brier"].margin, m["log_loss"].margin) == (0.01, 0.01, 0.02)
+    assert m["mse"].margin == 0.01 and m["mse"].relative and not m["error"].relative
+
+
+def test_defaults_are_what_a_study_without_factors_sweeps():
+    study = parse_study('name = "d"\nseed = 1\ndatasets = ["iris", "diabetes"]\n')
+    assert study.factors[CLASSIFICATION] == {
+        "criterion": ["gini"],
+        "max_depth": ["none"],
+        "min_samples_leaf": [1],
+        "inner_folds": [10],
+        "rule": ["1se"],
+        "prune_risk": ["error"],
+    }
+    assert study.factors[REGRESSION]["criterion"] == ["squared_error"]
+    assert study.factors[REGRESSION]["prune_risk"] == ["squared_error"]
+
+
+def test_prune_risk_names_are_the_pruning_engines():
+    from prunebench.pruning import PRUNE_RISKS
+
+    assert vocabulary.prune_risk_names() == PRUNE_RISKS
+
+
+def test_growth_factors_are_those_that_change_the_tree():
+    assert growth_factors() == ["criterion", "max_depth", "min_samples_leaf"]
+
+
+def test_configuration_from_a_row_with_missing_levels():
+    row = pd.Series(
+        {
+            "criterion": "entropy",
+            "max_depth": pd.NA,
+            "min_samples_leaf": np.int64(5),
+            "inner_folds": 10.0,
+            "rule": "1se",
+            "prune_risk": "error",
+            "other": 3,
+        }
+    )
+    config = Configuration.of(row)
+    assert config.max_depth is None and config.label() == "entr d=none l=5 k=10 1se err"
+    assert config_label(row) == config.label()
+    assert config == Configuration.of(("entropy", None, 5, 10, "1se", "error"))
+    unpruned = config.unpruned()
+    assert not unpruned.pruned and unpruned.label() == "entr d=none l=5 unpruned"
+    assert (unpruned.inner_folds, unpruned.prune_risk) == (None, None)
+    assert {config: 1}[Configuration.of(config.levels())] == 1  # hashable, equal by levels
+
+
+# ---- a metric added in one place flows to the store, the statistics and the exports ------
+
+
+@pytest.fixture
+def doubled_error(monkeypatch):
+    """A throw-away metric: one vocabulary entry plus its computation."""
+    monkeypatch.setitem(
+        vocabulary.METRICS, "doubled_error", Metric("doubled_error", CLASSIFICATION, False, 0.02)
+    )
+    scores = evaluate._classification_scores
+
+    def with_doubled(model, X, y, classes):
+        out = scores(model, X, y, classes)
+        return {**out, "doubled_error": 2 * out["error"]}
+
+    monkeypatch.setattr(evaluate, "_classification_scores", with_doubled)
+    return "doubled_error"
+
+
+def test_an_added_metric_reaches_folds_compare_and_export(doubled_error, tmp_path):
+    study = parse_study(
+        'name = "added-metric"\nseed = 2\ndatasets = ["iris"]\n[outer]\nrepeats = 1\nfolds = 3\n'
+        '[factors]\ninner_folds = [3]\nrule = ["min", "1se"]\n'
+    )
+    db = tmp_path / "r.sqlite"
+    conduct(study, db, progress=Progress(0, io.StringIO()))  # one worker: in this process
+    conn = sqlite3.connect(db)
+    rows = conn.execute("SELECT error, doubled_error FROM folds").fetchall()
+    assert len(rows) == 2 * 3 * 2 and all(d == pytest.approx(2 * e) for e, d in rows)
+    view = conn.execute("SELECT error, doubled_error FROM arm_summary").fetchall()
+    assert all(d == pytest.approx(2 * e) for e, d in view)
+
+    result = CliRunner().invoke(main, ["compare", "--db", str(db), "--metric", doubled_error])
+    assert result.exit_code == 0, result.output
+    assert "metric: doubled_error (lower is better)" in result.output
+    as_json = CliRunner().invoke(
+        main, ["compare", "--db", str(db), "--metric", doubled_error, "--json"]
+    )
+    by_error = CliRunner().invoke(main, ["compare", "--db", str(db), "--json"])
+    doubled, plain = json.loads(as_json.output), json.loads(by_error.output)
+    assert {r["metric"] for r in doubled} == {doubled_error}
+    for d, p in zip(doubled, plain, strict=True):
+        assert d["diff"] == pytest.approx(2 * p["diff"])
+        assert d["ci_high"] - d["ci_low"] == pytest.approx(2 * (p["ci_high"] - p["ci_low"]))
+
+    out = tmp_path / "export"
+    assert CliRunner().invoke(main, ["export", "--db", str(db), "--out", str(out)]).exit_code == 0
+    for name in ("folds", "fold_differences"):
+        with open(out / f"{name}.csv", newline="") as f:
+            table = list(csv.DictReader(f))
+        assert all(float(r["doubled_error"]) == pytest.approx(2 * float(r["error"])) for r in table)
