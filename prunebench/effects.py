@@ -60,7 +60,9 @@ __all__ = [
     "factor_effects",
     "family_of",
     "interaction_effects",
+    "combine",
     "loss_frame",
+    "losses",
     "normalise_levels",
     "random_effects",
 ]
@@ -352,13 +354,12 @@ def normalise_levels(levels: dict, family: str) -> dict[str, list]:
     return out
 
 
-def loss_frame(folds: pd.DataFrame, family: str, metric: str, levels: dict) -> pd.DataFrame:
-    """The family's fold rows with ``loss``, ``log_leaves`` and factor level codes.
+def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
+    """The family's fold rows with ``loss`` and ``log_leaves`` columns added.
 
-    ``loss`` is the metric (``1 - metric`` when larger is better; divided by the
-    data set's mean unpruned loss for :data:`RELATIVE_METRICS`). Each factor gets a
-    column ``code_<factor>``: the position of the row's level in ``levels``, so
-    the reference level is code 0.
+    ``loss`` is the metric, ``1 - metric`` when larger is better, divided by the
+    data set's mean unpruned loss (over all its unpruned trees) for
+    :data:`RELATIVE_METRICS`.
 
     Parameters
     ----------
@@ -366,8 +367,6 @@ def loss_frame(folds: pd.DataFrame, family: str, metric: str, levels: dict) -> p
         One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
     family : {"classification", "regression"}
     metric : str
-    levels : dict
-        As :func:`normalise_levels`.
 
     Returns
     -------
@@ -389,6 +388,28 @@ def loss_frame(folds: pd.DataFrame, family: str, metric: str, levels: dict) -> p
         loss = loss / rows["dataset"].map(scale)
     rows["loss"] = loss
     rows["log_leaves"] = np.log(rows["n_leaves"].astype(float))
+    return rows
+
+
+def loss_frame(folds: pd.DataFrame, family: str, metric: str, levels: dict) -> pd.DataFrame:
+    """:func:`losses` plus a level code per factor.
+
+    Each factor gets a column ``code_<factor>``: the position of the row's level in
+    ``levels``, so the first listed (reference) level is code 0.
+
+    Parameters
+    ----------
+    folds : DataFrame
+    family : {"classification", "regression"}
+    metric : str
+    levels : dict
+        As :func:`normalise_levels`.
+
+    Returns
+    -------
+    DataFrame
+    """
+    rows = losses(folds, family, metric)
     lv = normalise_levels(levels, family)
     for factor in FACTORS:
         seen = [_norm(v) for v in rows[factor].astype(object)]
@@ -487,9 +508,7 @@ def _reference_code(rows: pd.DataFrame, factor: str) -> int:
     return int(rows.loc[rows["arm"] == "pruned", f"code_{factor}"].min())
 
 
-def _contrast_folds(
-    rows: pd.DataFrame, factor: str, code: int, ref: int, value: str
-) -> pd.Series:
+def _contrast_folds(rows: pd.DataFrame, factor: str, code: int, ref: int, value: str) -> pd.Series:
     if factor == "pruning":
         return _pruning_folds(rows, value)
     pruned = rows[rows["arm"] == "pruned"]
