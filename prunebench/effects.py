@@ -64,7 +64,9 @@ __all__ = [
     "loss_frame",
     "losses",
     "normalise_levels",
+    "fill_zero_variances",
     "random_effects",
+    "random_effects_many",
 ]
 
 #: the factor columns of a configuration, in the order of the store
@@ -187,67 +189,106 @@ def random_effects(y, v, alpha: float = 0.05) -> dict:
         Q), ``pi_low``, ``pi_high`` (NaN for k < 3), ``k``.
     """
     y, v = np.asarray(y, dtype=float), np.asarray(v, dtype=float)
-    k = y.size
+    if y.ndim != 1 or y.shape != v.shape:
+        raise parameter_error("v", "random_effects", "a 1-d array shaped like y", v.tolist())
+    many = random_effects_many(y[:, None], v[:, None], alpha)
+    out = {key: float(value[0]) for key, value in many.items() if key not in ("df", "k")}
+    out.update(df=many["df"], k=many["k"])
+    return out
+
+
+def random_effects_many(y, v, alpha: float = 0.05) -> dict:
+    """:func:`random_effects` for many contrasts at once, one per column.
+
+    Parameters
+    ----------
+    y, v : array-like of shape (k, m)
+        Estimates and variances of m contrasts over the same k data sets; each
+        column's variances all positive or all zero.
+    alpha : float, default=0.05
+
+    Returns
+    -------
+    dict
+        As :func:`random_effects`, each value an array of shape (m,) (``df`` and ``k``
+        ints).
+    """
+    y, v = np.asarray(y, dtype=float), np.asarray(v, dtype=float)
+    if y.ndim != 2 or y.shape != v.shape:
+        raise parameter_error("v", "random_effects_many", "a 2-d array shaped like y", v.shape)
+    k = y.shape[0]
     if k < 2:
         raise parameter_error("y", "random_effects", "two or more estimates", y.tolist())
-    if y.shape != v.shape or not (np.all(np.isfinite(y)) and np.all(np.isfinite(v))):
-        raise parameter_error("v", "random_effects", "finite and shaped like y", v.tolist())
-    if np.any(v < 0) or (np.any(v == 0) and not np.all(v == 0)):
+    if not (np.all(np.isfinite(y)) and np.all(np.isfinite(v))) or np.any(v < 0):
+        raise parameter_error("v", "random_effects", "finite, y finite and v >= 0", v.tolist())
+    zero = v == 0
+    exact = zero.all(axis=0)
+    if np.any(zero.any(axis=0) & ~exact):
         raise parameter_error("v", "random_effects", "all positive or all zero", v.tolist())
-    if np.all(v == 0):
-        mu = float(y.mean())
-        q_stat = np.inf if np.any(y != mu) else 0.0
-        tau2 = float(y.var(ddof=1))
-        i2 = 1.0 if tau2 > 0 else 0.0
-        sum_w = k / tau2 if tau2 > 0 else np.inf
-        hk = tau2 / k
-    else:
-        w = 1 / v
-        mu_fe = np.sum(w * y) / np.sum(w)
-        q_stat = float(np.sum(w * (y - mu_fe) ** 2))
-        c = np.sum(w) - np.sum(w**2) / np.sum(w)
-        tau2 = float(max(0.0, (q_stat - (k - 1)) / c))
-        i2 = float(max(0.0, (q_stat - (k - 1)) / q_stat)) if q_stat > 0 else 0.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(exact, 1.0, 1 / np.where(zero, 1.0, v))
+        sum_w = w.sum(axis=0)
+        mu_fe = (w * y).sum(axis=0) / sum_w
+        q_stat = (w * (y - mu_fe) ** 2).sum(axis=0)
+        c = sum_w - (w**2).sum(axis=0) / sum_w
+        tau2 = np.maximum(0.0, (q_stat - (k - 1)) / c)
+        i2 = np.where(q_stat > 0, np.maximum(0.0, (q_stat - (k - 1)) / q_stat), 0.0)
         ws = 1 / (v + tau2)
-        sum_w = float(np.sum(ws))
-        mu = float(np.sum(ws * y) / sum_w)
-        hk = float(np.sum(ws * (y - mu) ** 2) / (k - 1)) / sum_w
-    se = float(np.sqrt(hk))
-    df = k - 1
-    crit = sps.t.ppf(1 - alpha / 2, df)
-    if se > 0:
-        p = float(2 * sps.t.sf(abs(mu) / se, df))
-    else:
-        p = 1.0 if mu == 0 else 0.0
-    if k >= 3:
-        half = sps.t.ppf(1 - alpha / 2, k - 2) * np.sqrt(tau2 + 1 / sum_w)
-        pi_low, pi_high = mu - half, mu + half
-    else:
-        pi_low = pi_high = np.nan
+        ws = np.where(exact, 1.0, ws)
+        sum_ws = ws.sum(axis=0)
+        mu = (ws * y).sum(axis=0) / sum_ws
+        hk = (ws * (y - mu) ** 2).sum(axis=0) / (k - 1) / sum_ws
+        # every variance zero: the limit v -> 0 (equal weights, tau2 = var(y))
+        spread = y.var(axis=0, ddof=1)
+        tau2 = np.where(exact, spread, tau2)
+        i2 = np.where(exact, (spread > 0).astype(float), i2)
+        q_stat = np.where(exact, np.where(spread > 0, np.inf, 0.0), q_stat)
+        hk = np.where(exact, spread / k, hk)
+        plain = np.where(exact, spread / k, 1 / sum_ws)
+        se = np.sqrt(hk)
+        crit = sps.t.ppf(1 - alpha / 2, k - 1)
+        p = np.where(se > 0, 2 * sps.t.sf(np.abs(mu) / se, k - 1), np.where(mu == 0, 1.0, 0.0))
+        if k >= 3:
+            half = sps.t.ppf(1 - alpha / 2, k - 2) * np.sqrt(tau2 + plain)
+        else:
+            half = np.full(mu.shape, np.nan)
     return {
         "estimate": mu,
         "se": se,
-        "se_plain": float(np.sqrt(1 / sum_w)),
-        "df": df,
+        "se_plain": np.sqrt(plain),
+        "df": k - 1,
         "ci_low": mu - crit * se,
         "ci_high": mu + crit * se,
         "p_value": p,
         "tau2": tau2,
         "i2": i2,
         "q": q_stat,
-        "pi_low": float(pi_low),
-        "pi_high": float(pi_high),
+        "pi_low": mu - half,
+        "pi_high": mu + half,
         "k": k,
     }
 
 
-def _fill_zero_variances(v: np.ndarray) -> np.ndarray:
-    """Zero variances take the smallest positive one (all zero stays all zero)."""
-    v = np.asarray(v, dtype=float).copy()
-    positive = v[v > 0]
-    if positive.size and positive.size < v.size:
-        v[v == 0] = positive.min()
-    return v
+def fill_zero_variances(v) -> np.ndarray:
+    """Zero variances take the smallest positive one of their column (all zero stays zero).
+
+    A data set whose contrasts agree on every fold (s^2 = 0, e.g. two levels that grow
+    the same trees) would otherwise get infinite weight and pin the estimate.
+
+    Parameters
+    ----------
+    v : array-like of shape (k,) or (k, m)
+
+    Returns
+    -------
+    ndarray
+    """
+    v = np.array(v, dtype=float)
+    flat = v.ndim == 1
+    v = v[:, None] if flat else v
+    smallest = np.where(v > 0, v, np.inf).min(axis=0)
+    v = np.where((v == 0) & np.isfinite(smallest), smallest, v)
+    return v[:, 0] if flat else v
 
 
 def combine(per_dataset: pd.DataFrame, alpha: float = 0.05) -> dict:
@@ -271,7 +312,7 @@ def combine(per_dataset: pd.DataFrame, alpha: float = 0.05) -> dict:
     y = per_dataset["y"].to_numpy(float)
     if not np.all(np.isfinite(per_dataset["v"].to_numpy(float))):
         raise EffectsError("a data set has fewer than two outer folds: no variance")
-    v = _fill_zero_variances(per_dataset["v"].to_numpy(float))
+    v = fill_zero_variances(per_dataset["v"].to_numpy(float))
     if y.size == 1:
         se, df = float(np.sqrt(v[0])), int(per_dataset["j"].iloc[0]) - 1
         mu = float(y[0])

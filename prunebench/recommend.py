@@ -39,7 +39,9 @@ from .effects import (
     _norm,
     default_margin,
     family_of,
+    fill_zero_variances,
     losses,
+    random_effects_many,
 )
 from .exceptions import parameter_error
 
@@ -108,35 +110,18 @@ def config_frame(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
 
 
 def _upper_and_mean(y: np.ndarray, v: np.ndarray, j: np.ndarray, alpha: float):
-    """Vectorised random-effects mean and one-sided upper bound, one column per contrast.
+    """Random-effects mean and one-sided upper bound, one column per contrast.
 
     ``y``, ``v`` are (k data sets x m contrasts); ``j`` the data sets' fold counts.
+    With one data set: its own corrected t bound on J - 1 df.
     """
-    k, m = y.shape
-    v = v.copy()
-    positive = np.where(v > 0, v, np.inf).min(axis=0)
-    has = np.isfinite(positive)
-    v = np.where((v == 0) & has, positive, v)
-    if k == 1:
-        se = np.sqrt(v[0])
-        mu = y[0]
-        q = sps.t.ppf(1 - alpha, j[0] - 1)
-        return mu, np.where(se > 0, mu + q * se, mu)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        w = np.where(has, 1 / v, 1.0)
-        sw = w.sum(axis=0)
-        mu_fe = (w * y).sum(axis=0) / sw
-        qstat = (w * (y - mu_fe) ** 2).sum(axis=0)
-        c = sw - (w**2).sum(axis=0) / sw
-        tau2 = np.maximum(0.0, (qstat - (k - 1)) / c)
-        ws = np.where(has, 1 / (v + tau2), 1.0)
-        sws = ws.sum(axis=0)
-        mu = (ws * y).sum(axis=0) / sws
-        hk = (ws * (y - mu) ** 2).sum(axis=0) / (k - 1) / sws
-    # all variances zero: the limit v -> 0 (equal weights, plain t over data sets)
-    hk = np.where(has, hk, y.var(axis=0, ddof=1) / k)
-    se = np.sqrt(hk)
-    q = sps.t.ppf(1 - alpha, k - 1)
+    v = fill_zero_variances(v)
+    if y.shape[0] == 1:
+        mu, se, df = y[0], np.sqrt(v[0]), j[0] - 1
+    else:
+        r = random_effects_many(y, v, alpha)
+        mu, se, df = r["estimate"], r["se"], r["df"]
+    q = sps.t.ppf(1 - alpha, df)
     return mu, np.where(se > 0, mu + q * se, mu)
 
 
