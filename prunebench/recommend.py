@@ -18,8 +18,10 @@ sets and its choice scored on the held-out one. The held-out data set's "best"
 configuration is not chosen on the folds it is scored on: the held-out outer folds,
 sorted by (repeat, fold), are split into the even and the odd positions; the best
 is picked on one half and both it and the rule's choice are scored on the other,
-and the two directions are averaged. (Within one repeat the halves' test rows are
-disjoint; across repeats they are the same rows in other partitions.) The regret
+and the two directions are averaged (configurations tied for best on the picking
+half count equally: their mean loss on the scoring half is the best's). Within one
+repeat the halves' test rows are disjoint; across repeats they are the same rows in
+other partitions. The regret
 is therefore not biased upwards by picking the best on noise, and can be negative.
 """
 
@@ -208,8 +210,10 @@ def _held_out(L, N, ratio, margin, alpha, datasets, configs) -> dict:
         choice = _choose(L[rest], N[rest], ratio[rest], margin, alpha)[3]
         regrets = []
         for pick, score in (halves, halves[::-1]):
-            best_h = int(np.argmin(L[h, pick].mean(axis=0)))
-            regrets.append(L[h, score, choice].mean() - L[h, score, best_h].mean())
+            on_pick = L[h, pick].mean(axis=0)
+            # configurations tied for best on the picking half share the role equally
+            best_h = np.flatnonzero(on_pick == on_pick.min())
+            regrets.append(L[h, score, choice].mean() - L[h][np.ix_(score, best_h)].mean())
         per.append(
             {
                 "dataset": datasets[h],
