@@ -1,0 +1,733 @@
+"""Per-factor effects across data sets: paired contrasts, random effects, verdicts.
+
+The team's questions are per factor ("does the one-standard-error rule cost
+accuracy against the minimum rule?"), so the analysis is per factor:
+
+1. **Per outer fold**, the marginal paired contrast of a level against the
+   reference level (the first level listed in the study file): the mean, over
+   every combination of the other factors' levels present for both levels, of
+   ``loss(level) - loss(reference)`` on the pruned arm. Both trials saw the same
+   outer test rows, so the contrast is paired. Tree size: the same with
+   ``log(n_leaves)``. "Pruning" is a factor too: the pruned arm against the
+   unpruned tree of the same growth settings.
+2. **Per data set**, the mean of the J per-fold contrasts and its Nadeau & Bengio
+   (2003) variance ``(1/J + mean(n_test/n_train)) * s^2`` (s^2 with ddof 1). A data
+   set whose contrasts agree on every fold (s^2 = 0) takes the smallest positive
+   variance among the other data sets of that contrast; when every data set has
+   s^2 = 0 the effect is exact.
+3. **Across data sets**, a random-effects combination (:func:`random_effects`):
+   DerSimonian & Laird's tau^2, the Hartung-Knapp(-Sidik-Jonkman) interval with t
+   on k - 1 degrees of freedom (plain form, no truncation), I^2, and the 95%
+   prediction interval of Higgins, Thompson & Spiegelhalter (2009).
+
+Losses
+------
+Every contrast is a difference of *losses*, negative = the level is better.
+Metrics where larger is better are turned into losses as ``1 - metric``
+(accuracy -> error, balanced accuracy -> balanced error, R^2 -> MSE / variance),
+so their estimates are minus the metric's difference. For MSE and MAE the loss of
+every fold is divided by the data set's mean unpruned loss (over all its unpruned
+trees), so data sets with large targets do not dominate and the default margin,
+1% of the unpruned loss, is 0.01 in those units.
+
+Verdicts
+--------
+``equivalent`` when the 90% interval lies inside ``±margin`` (two one-sided tests
+at 5%, Schuirmann 1987); otherwise ``better`` (estimate < 0) or ``worse`` when
+the Holm-adjusted p over the family's contrasts on the primary metric is below
+alpha; otherwise ``undecided``. Tree-size rows have no margin: ``smaller`` or
+``larger`` when their Holm-adjusted p (over the family's size rows) is below
+alpha, else ``undecided``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from scipy import stats as sps
+
+from .exceptions import PrunebenchError, parameter_error
+
+__all__ = [
+    "EFFECT_COLUMNS",
+    "FACTORS",
+    "HIGHER_IS_BETTER",
+    "INTERACTION_COLUMNS",
+    "MARGINS",
+    "RELATIVE_METRICS",
+    "EffectsError",
+    "default_margin",
+    "factor_effects",
+    "family_of",
+    "interaction_effects",
+    "combine",
+    "loss_frame",
+    "losses",
+    "normalise_levels",
+    "fill_zero_variances",
+    "random_effects",
+    "random_effects_many",
+]
+
+#: the factor columns of a configuration, in the order of the store
+FACTORS = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
+#: metrics where larger is better; their loss is ``1 - metric``
+HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2", "auc"}
+#: metrics whose loss is divided by the data set's mean unpruned loss (margin = share of it)
+RELATIVE_METRICS = {"mse", "mae"}
+#: default practical-equivalence margins in each metric's loss units (DESIGN.md "Decision"):
+#: 0.01 of error, Brier, AUC and accuracy; 0.02 of log loss; 1% of the unpruned loss for
+#: MSE and MAE (relative units, see :data:`RELATIVE_METRICS`); 0.01 of R^2.
+MARGINS = {
+    "error": 0.01,
+    "accuracy": 0.01,
+    "balanced_accuracy": 0.01,
+    "auc": 0.01,
+    "brier": 0.01,
+    "log_loss": 0.02,
+    "mse": 0.01,
+    "mae": 0.01,
+    "r2": 0.01,
+}
+_FAMILY_METRICS = {
+    "classification": {"error", "accuracy", "balanced_accuracy", "log_loss", "brier", "auc"},
+    "regression": {"mse", "mae", "r2"},
+}
+_DEFAULT_METRIC = {"classification": "error", "regression": "mse"}
+
+#: columns of :func:`factor_effects`' table
+EFFECT_COLUMNS = [
+    "family",
+    "factor",
+    "level",
+    "reference",
+    "metric",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "ci90_low",
+    "ci90_high",
+    "pi_low",
+    "pi_high",
+    "tau2",
+    "i2",
+    "n_datasets",
+    "p_value",
+    "p_holm",
+    "verdict",
+    "margin",
+    "ratio",
+    "ratio_low",
+    "ratio_high",
+    "note",
+]
+#: columns of :func:`interaction_effects`' table
+INTERACTION_COLUMNS = [
+    "family",
+    "factor",
+    "level",
+    "reference",
+    "metric",
+    "by",
+    "by_level",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "n_datasets",
+    "spread",
+    "margin",
+    "flagged",
+]
+
+
+class EffectsError(PrunebenchError):
+    """The folds cannot answer the question asked."""
+
+    exit_code = 2
+
+
+def family_of(task: str) -> str:
+    """``"regression"`` for regression tasks, ``"classification"`` for every other task."""
+    return "regression" if task == "regression" else "classification"
+
+
+def default_margin(metric: str) -> float:
+    """The default practical-equivalence margin of a metric (:data:`MARGINS`)."""
+    if metric not in MARGINS:
+        raise parameter_error("metric", "default_margin", f"one of {sorted(MARGINS)}", metric)
+    return MARGINS[metric]
+
+
+# ---- the random-effects combination ----------------------------------------------------
+
+
+def random_effects(y, v, alpha: float = 0.05) -> dict:
+    """DerSimonian-Laird random-effects mean with the Hartung-Knapp interval.
+
+    ``w = 1/v``, ``mu_FE = sum(w y)/sum(w)``, ``Q = sum(w (y - mu_FE)^2)``,
+    ``c = sum(w) - sum(w^2)/sum(w)``, ``tau2 = max(0, (Q - (k-1))/c)``,
+    ``I2 = max(0, (Q - (k-1))/Q)``; ``w* = 1/(v + tau2)``, ``mu = sum(w* y)/sum(w*)``;
+    ``q = sum(w* (y - mu)^2)/(k-1)``, ``SE_HK = sqrt(q/sum(w*))`` and the interval
+    ``mu ± t_{k-1} SE_HK`` (no truncation of q). Prediction interval for a new data
+    set: ``mu ± t_{k-2} sqrt(tau2 + 1/sum(w*))``. When every variance is zero the
+    limit v -> 0 is used: equal weights, ``tau2`` = the sample variance of y.
+
+    Parameters
+    ----------
+    y, v : array-like of shape (k,)
+        Per-data-set estimates and their variances (finite, v >= 0, all positive or
+        all zero).
+    alpha : float, default=0.05
+        The intervals are ``1 - alpha`` (two-sided).
+
+    Returns
+    -------
+    dict
+        ``estimate``, ``se`` (Hartung-Knapp), ``se_plain`` (sqrt(1/sum w*), the usual
+        DerSimonian-Laird standard error), ``df`` (k - 1), ``ci_low``, ``ci_high``,
+        ``p_value`` (Hartung-Knapp t test of mu = 0), ``tau2``, ``i2``, ``q`` (Cochran's
+        Q), ``pi_low``, ``pi_high`` (NaN for k < 3), ``k``.
+    """
+    y, v = np.asarray(y, dtype=float), np.asarray(v, dtype=float)
+    if y.ndim != 1 or y.shape != v.shape:
+        raise parameter_error("v", "random_effects", "a 1-d array shaped like y", v.tolist())
+    many = random_effects_many(y[:, None], v[:, None], alpha)
+    out = {key: float(value[0]) for key, value in many.items() if key not in ("df", "k")}
+    out.update(df=many["df"], k=many["k"])
+    return out
+
+
+def random_effects_many(y, v, alpha: float = 0.05) -> dict:
+    """:func:`random_effects` for many contrasts at once, one per column.
+
+    Parameters
+    ----------
+    y, v : array-like of shape (k, m)
+        Estimates and variances of m contrasts over the same k data sets; each
+        column's variances all positive or all zero.
+    alpha : float, default=0.05
+
+    Returns
+    -------
+    dict
+        As :func:`random_effects`, each value an array of shape (m,) (``df`` and ``k``
+        ints).
+    """
+    y, v = np.asarray(y, dtype=float), np.asarray(v, dtype=float)
+    if y.ndim != 2 or y.shape != v.shape:
+        raise parameter_error("v", "random_effects_many", "a 2-d array shaped like y", v.shape)
+    k = y.shape[0]
+    if k < 2:
+        raise parameter_error("y", "random_effects", "two or more estimates", y.tolist())
+    if not (np.all(np.isfinite(y)) and np.all(np.isfinite(v))) or np.any(v < 0):
+        raise parameter_error("v", "random_effects", "finite, y finite and v >= 0", v.tolist())
+    zero = v == 0
+    exact = zero.all(axis=0)
+    if np.any(zero.any(axis=0) & ~exact):
+        raise parameter_error("v", "random_effects", "all positive or all zero", v.tolist())
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(exact, 1.0, 1 / np.where(zero, 1.0, v))
+        sum_w = w.sum(axis=0)
+        mu_fe = (w * y).sum(axis=0) / sum_w
+        q_stat = (w * (y - mu_fe) ** 2).sum(axis=0)
+        c = sum_w - (w**2).sum(axis=0) / sum_w
+        tau2 = np.maximum(0.0, (q_stat - (k - 1)) / c)
+        i2 = np.where(q_stat > 0, np.maximum(0.0, (q_stat - (k - 1)) / q_stat), 0.0)
+        ws = 1 / (v + tau2)
+        ws = np.where(exact, 1.0, ws)
+        sum_ws = ws.sum(axis=0)
+        mu = (ws * y).sum(axis=0) / sum_ws
+        hk = (ws * (y - mu) ** 2).sum(axis=0) / (k - 1) / sum_ws
+        # every variance zero: the limit v -> 0 (equal weights, tau2 = var(y))
+        spread = y.var(axis=0, ddof=1)
+        tau2 = np.where(exact, spread, tau2)
+        i2 = np.where(exact, (spread > 0).astype(float), i2)
+        q_stat = np.where(exact, np.where(spread > 0, np.inf, 0.0), q_stat)
+        hk = np.where(exact, spread / k, hk)
+        plain = np.where(exact, spread / k, 1 / sum_ws)
+        se = np.sqrt(hk)
+        crit = sps.t.ppf(1 - alpha / 2, k - 1)
+        p = np.where(se > 0, 2 * sps.t.sf(np.abs(mu) / se, k - 1), np.where(mu == 0, 1.0, 0.0))
+        if k >= 3:
+            half = sps.t.ppf(1 - alpha / 2, k - 2) * np.sqrt(tau2 + plain)
+        else:
+            half = np.full(mu.shape, np.nan)
+    return {
+        "estimate": mu,
+        "se": se,
+        "se_plain": np.sqrt(plain),
+        "df": k - 1,
+        "ci_low": mu - crit * se,
+        "ci_high": mu + crit * se,
+        "p_value": p,
+        "tau2": tau2,
+        "i2": i2,
+        "q": q_stat,
+        "pi_low": mu - half,
+        "pi_high": mu + half,
+        "k": k,
+    }
+
+
+def fill_zero_variances(v) -> np.ndarray:
+    """Zero variances take the smallest positive one of their column (all zero stays zero).
+
+    A data set whose contrasts agree on every fold (s^2 = 0, e.g. two levels that grow
+    the same trees) would otherwise get infinite weight and pin the estimate.
+
+    Parameters
+    ----------
+    v : array-like of shape (k,) or (k, m)
+
+    Returns
+    -------
+    ndarray
+    """
+    v = np.array(v, dtype=float)
+    flat = v.ndim == 1
+    v = v[:, None] if flat else v
+    smallest = np.where(v > 0, v, np.inf).min(axis=0)
+    v = np.where((v == 0) & np.isfinite(smallest), smallest, v)
+    return v[:, 0] if flat else v
+
+
+def combine(per_dataset: pd.DataFrame, alpha: float = 0.05) -> dict:
+    """Combine per-data-set paired means across data sets.
+
+    Parameters
+    ----------
+    per_dataset : DataFrame
+        One row per data set with ``y`` (mean contrast), ``v`` (Nadeau-Bengio
+        variance) and ``j`` (outer folds).
+    alpha : float, default=0.05
+
+    Returns
+    -------
+    dict
+        :func:`random_effects`' keys plus ``ci90_low``/``ci90_high`` (the 1 - 2 alpha
+        interval the equivalence verdict uses) and ``note``. With one data set: its
+        own corrected t interval on J - 1 df, NaN heterogeneity and prediction
+        interval, and a note that nothing generalises beyond it.
+    """
+    y = per_dataset["y"].to_numpy(float)
+    if not np.all(np.isfinite(per_dataset["v"].to_numpy(float))):
+        raise EffectsError("a data set has fewer than two outer folds: no variance")
+    v = fill_zero_variances(per_dataset["v"].to_numpy(float))
+    if y.size == 1:
+        se, df = float(np.sqrt(v[0])), int(per_dataset["j"].iloc[0]) - 1
+        mu = float(y[0])
+        out = {
+            "estimate": mu,
+            "se": se,
+            "se_plain": se,
+            "df": df,
+            "tau2": np.nan,
+            "i2": np.nan,
+            "q": np.nan,
+            "pi_low": np.nan,
+            "pi_high": np.nan,
+            "k": 1,
+            "note": "one data set: the interval is that data set's; nothing generalises beyond it",
+        }
+    else:
+        out = random_effects(y, v, alpha)
+        mu, se, df = out["estimate"], out["se"], out["df"]
+        out["note"] = "two data sets: no prediction interval" if y.size == 2 else ""
+    for name, level in (("", alpha), ("90", 2 * alpha)):
+        if se > 0:
+            half = sps.t.ppf(1 - level / 2, df) if df >= 1 else np.nan
+            out[f"ci{name}_low"], out[f"ci{name}_high"] = mu - half * se, mu + half * se
+        else:
+            out[f"ci{name}_low"] = out[f"ci{name}_high"] = mu
+    if y.size == 1:
+        if se > 0:
+            out["p_value"] = float(2 * sps.t.sf(abs(mu) / se, df)) if df >= 1 else np.nan
+        else:
+            out["p_value"] = 1.0 if mu == 0 else 0.0
+    return out
+
+
+# ---- preparing the folds ---------------------------------------------------------------
+
+
+def _norm(value):
+    """One spelling per level: None for unlimited/missing, plain Python scalars."""
+    if value is None or value is pd.NA or value is pd.NaT:
+        return None
+    if isinstance(value, float | np.floating) and np.isnan(value):
+        return None
+    if isinstance(value, str) and value.lower() == "none":
+        return None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return int(value) if float(value).is_integer() else float(value)
+    return value
+
+
+def normalise_levels(levels: dict, family: str) -> dict[str, list]:
+    """The levels of one task family, each spelled as in the folds (None = unlimited).
+
+    Parameters
+    ----------
+    levels : dict
+        Factor -> ordered levels (reference first), or family -> that mapping.
+    family : {"classification", "regression"}
+
+    Returns
+    -------
+    dict
+        Factor -> list of levels.
+    """
+    if not isinstance(levels, dict):
+        raise parameter_error("levels", "factor_effects", "a dict of factor -> levels", levels)
+    if family in levels and isinstance(levels[family], dict):
+        levels = levels[family]
+    out = {}
+    for factor, values in levels.items():
+        if isinstance(values, dict):
+            continue  # the other family's levels
+        if not isinstance(values, list | tuple) or not values:
+            raise parameter_error(
+                f"levels[{factor!r}]", "factor_effects", "a non-empty list", values
+            )
+        out[factor] = [_norm(v) for v in values]
+    return out
+
+
+def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
+    """The family's fold rows with ``loss`` and ``log_leaves`` columns added.
+
+    ``loss`` is the metric, ``1 - metric`` when larger is better, divided by the
+    data set's mean unpruned loss (over all its unpruned trees) for
+    :data:`RELATIVE_METRICS`.
+
+    Parameters
+    ----------
+    folds : DataFrame
+        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
+    family : {"classification", "regression"}
+    metric : str
+
+    Returns
+    -------
+    DataFrame
+    """
+    missing = {"dataset", "task", "trial_id", "repeat", "fold", "arm", "n_train", "n_test"}
+    missing |= {"n_leaves", metric, *FACTORS}
+    missing -= set(folds.columns)
+    if missing:
+        raise EffectsError(f"the folds lack the column(s) {', '.join(sorted(missing))}")
+    rows = folds[folds["task"].map(family_of) == family].copy()
+    if rows.empty:
+        raise EffectsError(f"no {family} data set in the folds")
+    loss = rows[metric].astype(float)
+    if metric in HIGHER_IS_BETTER:
+        loss = 1.0 - loss
+    if metric in RELATIVE_METRICS:
+        scale = loss[rows["arm"] == "unpruned"].groupby(rows["dataset"]).mean()
+        loss = loss / rows["dataset"].map(scale)
+    rows["loss"] = loss
+    rows["log_leaves"] = np.log(rows["n_leaves"].astype(float))
+    return rows
+
+
+def loss_frame(folds: pd.DataFrame, family: str, metric: str, levels: dict) -> pd.DataFrame:
+    """:func:`losses` plus a level code per factor.
+
+    Each factor gets a column ``code_<factor>``: the position of the row's level in
+    ``levels``, so the first listed (reference) level is code 0.
+
+    Parameters
+    ----------
+    folds : DataFrame
+    family : {"classification", "regression"}
+    metric : str
+    levels : dict
+        As :func:`normalise_levels`.
+
+    Returns
+    -------
+    DataFrame
+    """
+    rows = losses(folds, family, metric)
+    lv = normalise_levels(levels, family)
+    for factor in FACTORS:
+        seen = [_norm(v) for v in rows[factor].astype(object)]
+        order = lv.get(factor)
+        distinct = list(dict.fromkeys(seen))
+        if order is None:
+            if len(distinct) > 1:
+                raise parameter_error(
+                    "levels", "factor_effects", f"a level order for {factor!r}", sorted(lv)
+                )
+            order = distinct
+        position = {v: i for i, v in enumerate(order)}
+        unknown = [v for v in distinct if v not in position]
+        if unknown:
+            raise parameter_error(
+                f"levels[{factor!r}]", "factor_effects", f"a list holding {unknown!r}", order
+            )
+        rows[f"code_{factor}"] = [position[v] for v in seen]
+    return rows
+
+
+# ---- contrasts -------------------------------------------------------------------------
+
+
+def _fold_info(rows: pd.DataFrame) -> pd.DataFrame:
+    return rows.groupby(["dataset", "repeat", "fold"])[["n_train", "n_test"]].first()
+
+
+def _factor_folds(pruned: pd.DataFrame, factor: str, level: int, value: str) -> pd.Series:
+    """Per (dataset, repeat, fold): mean over other-factor cells of value(level) - value(ref)."""
+    code = f"code_{factor}"
+    others = [f"code_{f}" for f in FACTORS if f != factor]
+    sub = pruned[pruned[code].isin([0, level])]
+    wide = sub.set_index(["dataset", "repeat", "fold", *others, code])[value].unstack(code)
+    if level not in wide or 0 not in wide:
+        return pd.Series(dtype=float)
+    d = (wide[level] - wide[0]).dropna()
+    return d.groupby(level=["dataset", "repeat", "fold"]).mean()
+
+
+def _pruning_folds(rows: pd.DataFrame, value: str) -> pd.Series:
+    """Per (dataset, repeat, fold): mean over trials of value(pruned) - value(unpruned)."""
+    keys = ["trial_id", "repeat", "fold"]
+    p = rows[rows["arm"] == "pruned"].set_index(keys)
+    u = rows[rows["arm"] == "unpruned"].set_index(keys)[value]
+    d = (p[value] - u.reindex(p.index)).dropna()
+    frame = pd.DataFrame({"d": d, "dataset": p.loc[d.index, "dataset"]}).reset_index()
+    return frame.groupby(["dataset", "repeat", "fold"])["d"].mean()
+
+
+def _per_dataset(contrasts: pd.Series, info: pd.DataFrame) -> pd.DataFrame:
+    """Mean, Nadeau-Bengio variance and fold count of the per-fold contrasts per data set."""
+    frame = pd.DataFrame({"d": contrasts}).join(info, how="left")
+    frame["ratio"] = frame["n_test"] / frame["n_train"]
+    g = frame.groupby(level="dataset")
+    out = pd.DataFrame({"y": g["d"].mean(), "s2": g["d"].var(ddof=1), "j": g["d"].size()})
+    out["ratio"] = g["ratio"].mean()
+    out["v"] = (1 / out["j"] + out["ratio"]) * out["s2"]
+    return out
+
+
+def _contrast_list(rows: pd.DataFrame) -> list[tuple[str, int]]:
+    """(factor, level code) of every non-reference level present, pruning first."""
+    pruned = rows[rows["arm"] == "pruned"]
+    out = [("pruning", 1)] if (rows["arm"] == "unpruned").any() else []
+    for factor in FACTORS:
+        codes = sorted(pruned[f"code_{factor}"].unique())
+        if len(codes) >= 2:
+            out += [(factor, int(c)) for c in codes if c != codes[0]]
+    return out
+
+
+def _family_metric(folds: pd.DataFrame, metric: str | None) -> dict[str, str]:
+    families = sorted(set(folds["task"].map(family_of)))
+    chosen = {}
+    for family in families:
+        m = metric or _DEFAULT_METRIC[family]
+        if m in _FAMILY_METRICS[family]:
+            chosen[family] = m
+    if not chosen:
+        raise parameter_error("metric", "factor_effects", "a metric of the folds' tasks", metric)
+    return chosen
+
+
+def _level_names(rows: pd.DataFrame, levels: dict, family: str, factor: str, code: int):
+    if factor == "pruning":
+        return ("pruned", "unpruned")
+    lv = normalise_levels(levels, family).get(factor)
+    if lv is None:
+        lv = [_norm(rows[factor].iloc[0])]
+    present = sorted(rows.loc[rows["arm"] == "pruned", f"code_{factor}"].unique())
+    return lv[code], lv[present[0]]
+
+
+def _reference_code(rows: pd.DataFrame, factor: str) -> int:
+    return int(rows.loc[rows["arm"] == "pruned", f"code_{factor}"].min())
+
+
+def _contrast_folds(rows: pd.DataFrame, factor: str, code: int, ref: int, value: str) -> pd.Series:
+    if factor == "pruning":
+        return _pruning_folds(rows, value)
+    pruned = rows[rows["arm"] == "pruned"]
+    if ref != 0:  # the first listed level is absent here: the first present is the reference
+        pruned = pruned.assign(**{f"code_{factor}": pruned[f"code_{factor}"].replace(ref, 0)})
+    return _factor_folds(pruned, factor, code, value)
+
+
+def factor_effects(
+    folds: pd.DataFrame,
+    levels: dict,
+    metric: str | None = None,
+    margin: float | None = None,
+    alpha: float = 0.05,
+) -> pd.DataFrame:
+    """Each factor level's effect on the primary metric and on tree size, across data sets.
+
+    Parameters
+    ----------
+    folds : DataFrame
+        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
+    levels : dict
+        Factor -> levels in the study file's order (the first is the reference), or
+        family -> such a mapping; ``None`` or ``"none"`` for an unlimited depth.
+    metric : str, optional
+        The primary metric; default ``error`` for classification, ``mse`` for
+        regression. Families without the metric are left out.
+    margin : float, optional
+        Practical-equivalence margin in the metric's loss units; default
+        :data:`MARGINS` of the metric.
+    alpha : float, default=0.05
+        Level of the tests; the intervals are ``1 - alpha``, the equivalence interval
+        ``1 - 2 alpha``.
+
+    Returns
+    -------
+    DataFrame
+        :data:`EFFECT_COLUMNS`: per family, factor (``"pruning"`` included) and
+        non-reference level, one row for the metric and one for ``n_leaves`` (its
+        estimate and interval on the log scale, and ``ratio``/``ratio_low``/
+        ``ratio_high`` = their exponentials).
+    """
+    if not 0 < alpha < 0.5:
+        raise parameter_error("alpha", "factor_effects", "a float in (0, 0.5)", alpha)
+    if margin is not None and not margin > 0:
+        raise parameter_error("margin", "factor_effects", "a positive float", margin)
+    out = []
+    for family, m in _family_metric(folds, metric).items():
+        rows = loss_frame(folds, family, m, levels)
+        info = _fold_info(rows)
+        fam_margin = default_margin(m) if margin is None else float(margin)
+        records = []
+        for factor, code in _contrast_list(rows):
+            level, reference = _level_names(rows, levels, family, factor, code)
+            for value, name in (("loss", m), ("log_leaves", "n_leaves")):
+                ref = 0 if factor == "pruning" else _reference_code(rows, factor)
+                per = _per_dataset(_contrast_folds(rows, factor, code, ref, value), info)
+                if per.empty:
+                    continue
+                r = combine(per, alpha)
+                rec = {
+                    "family": family,
+                    "factor": factor,
+                    "level": level,
+                    "reference": reference,
+                    "metric": name,
+                    "n_datasets": int(r["k"]),
+                    "margin": fam_margin if name == m else np.nan,
+                    **{k: r[k] for k in ("estimate", "ci_low", "ci_high", "ci90_low", "ci90_high")},
+                    **{k: r[k] for k in ("pi_low", "pi_high", "tau2", "i2", "p_value", "note")},
+                }
+                if name == "n_leaves":
+                    rec.update(
+                        ratio=float(np.exp(r["estimate"])),
+                        ratio_low=float(np.exp(r["ci_low"])),
+                        ratio_high=float(np.exp(r["ci_high"])),
+                    )
+                records.append(rec)
+        table = pd.DataFrame(records)
+        for name in (m, "n_leaves"):
+            mask = table["metric"] == name
+            table.loc[mask, "p_holm"] = _holm(table.loc[mask, "p_value"].to_numpy())
+        table["verdict"] = [_verdict(row, alpha) for row in table.itertuples(index=False)]
+        out.append(table)
+    result = pd.concat(out, ignore_index=True)
+    return result.reindex(columns=EFFECT_COLUMNS)
+
+
+def _holm(p: np.ndarray) -> np.ndarray:
+    """Holm's step-down adjustment (NaN stays NaN)."""
+    p = np.asarray(p, dtype=float)
+    out = np.full(p.size, np.nan)
+    ok = np.flatnonzero(~np.isnan(p))
+    order = ok[np.argsort(p[ok], kind="stable")]
+    adjusted = np.maximum.accumulate((order.size - np.arange(order.size)) * p[order])
+    out[order] = np.minimum(adjusted, 1.0)
+    return out
+
+
+def _verdict(row, alpha: float) -> str:
+    if row.metric == "n_leaves":
+        if row.p_holm < alpha:
+            return "smaller" if row.estimate < 0 else "larger"
+        return "undecided"
+    if -row.margin < row.ci90_low and row.ci90_high < row.margin:
+        return "equivalent"
+    if row.p_holm < alpha:
+        return "better" if row.estimate < 0 else "worse"
+    return "undecided"
+
+
+def interaction_effects(
+    folds: pd.DataFrame,
+    levels: dict,
+    metric: str | None = None,
+    margin: float | None = None,
+    alpha: float = 0.05,
+) -> pd.DataFrame:
+    """Each factor contrast on the primary metric within each level of another factor.
+
+    The contrast of :func:`factor_effects` computed on the trials at one level of a
+    second factor ``by`` (marginal over the remaining factors) and combined across
+    data sets the same way. A (factor, level, by) triple is ``flagged`` when its
+    within-level estimates differ by more than the margin (``spread`` = max - min):
+    the best default for one factor then depends on the other.
+
+    Parameters
+    ----------
+    folds, levels, metric, margin, alpha
+        As :func:`factor_effects`.
+
+    Returns
+    -------
+    DataFrame
+        :data:`INTERACTION_COLUMNS`.
+    """
+    records = []
+    for family, m in _family_metric(folds, metric).items():
+        rows = loss_frame(folds, family, m, levels)
+        info = _fold_info(rows)
+        fam_margin = default_margin(m) if margin is None else float(margin)
+        lv = normalise_levels(levels, family)
+        pruned = rows[rows["arm"] == "pruned"]
+        by_factors = [f for f in FACTORS if pruned[f"code_{f}"].nunique() >= 2]
+        for factor, code in _contrast_list(rows):
+            level, reference = _level_names(rows, levels, family, factor, code)
+            ref = 0 if factor == "pruning" else _reference_code(rows, factor)
+            for by in by_factors:
+                if by == factor:
+                    continue
+                found = []
+                for by_code in sorted(pruned[f"code_{by}"].unique()):
+                    within = rows[rows[f"code_{by}"] == by_code]
+                    per = _per_dataset(_contrast_folds(within, factor, code, ref, "loss"), info)
+                    if per.empty:
+                        continue
+                    r = combine(per, alpha)
+                    found.append(
+                        {
+                            "family": family,
+                            "factor": factor,
+                            "level": level,
+                            "reference": reference,
+                            "metric": m,
+                            "by": by,
+                            "by_level": lv[by][by_code] if by in lv else None,
+                            "estimate": r["estimate"],
+                            "ci_low": r["ci_low"],
+                            "ci_high": r["ci_high"],
+                            "n_datasets": int(r["k"]),
+                            "margin": fam_margin,
+                        }
+                    )
+                if len(found) < 2:
+                    continue
+                estimates = [f["estimate"] for f in found]
+                spread = float(max(estimates) - min(estimates))
+                for f in found:
+                    f.update(spread=spread, flagged=bool(spread > fam_margin))
+                records += found
+    return pd.DataFrame(records).reindex(columns=INTERACTION_COLUMNS)
