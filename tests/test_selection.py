@@ -107,3 +107,37 @@ def test_rules_share_one_curve_and_one_se_picks_a_smaller_tree():
     assert selection.alpha("1se") >= selection.alpha("min")
     leaves = selection.curve["n_leaves"].to_numpy()
     assert leaves[selection.chosen["1se"]] <= leaves[selection.chosen["min"]]
+
+
+# ---------------------------------------------------------------------------
+# Contract: every selection rule through one table of cases.  Each row: the
+# rule's spelling, a CV curve (mean, se) and the index it must choose, worked
+# by hand from the rule's definition (Breiman et al. 1984, §3.4.3 for k-SE).
+_MEAN = np.array([0.30, 0.25, 0.20, 0.22, 0.24, 0.40])
+_SE = np.array([0.05, 0.04, 0.03, 0.03, 0.02, 0.01])
+_FLAT = np.array([0.2, 0.1, 0.3, 0.1, 0.5])
+RULE_CASES = [
+    # (spelling, mean, se, expected index, why)
+    ("min", _MEAN, _SE, 2, "lowest mean 0.20"),
+    ("min", _FLAT, np.zeros(5), 3, "tie at 0.1 goes to the larger alpha"),
+    ("1se", _MEAN, _SE, 3, "bound 0.23 admits 0.22 at index 3"),
+    ("0.5se", _MEAN, _SE, 2, "bound 0.215 admits only the minimum"),
+    ("4se", _MEAN, _SE, 4, "bound 0.32 admits 0.24 at index 4"),
+    ("0se", _MEAN, _SE, 2, "k = 0 is the min rule"),
+    ("1se", _FLAT, np.full(5, 0.05), 3, "bound 0.15; 0.3 and 0.5 are out"),
+    ("2se", _FLAT, np.full(5, 0.1), 3, "bound 0.3 admits 0.3 at index 2, but 3 is larger"),
+    ("5se", _FLAT, np.full(5, 0.1), 4, "bound 0.6 admits 0.5 at index 4"),
+    ("1se", np.array([0.1]), np.array([0.0]), 0, "one candidate"),
+]
+
+
+@pytest.mark.parametrize("spelling, mean, se, expected, why", RULE_CASES)
+def test_rule_contract(spelling, mean, se, expected, why):
+    rule = parse_rule(spelling)
+    assert parse_rule(rule) is rule and parse_rule(rule.name) == rule
+    chosen = rule.choose(mean, se)
+    assert chosen == expected, why
+    # every CV rule picks a candidate no better than the minimum and, among the
+    # candidates it admits, the largest alpha
+    best = MinimumRule().choose(mean, se)
+    assert mean[chosen] >= mean[best] and chosen >= best
