@@ -42,13 +42,15 @@ __all__ = [
     "PRUNE_RISKS",
     "PruningPath",
     "cart_candidates",
+    "check_costs",
     "merge_close",
+    "node_class_costs",
     "node_risks",
     "pruning_path",
 ]
 
 #: The pruning risks R(t) a path can be computed under.
-PRUNE_RISKS = ("error", "impurity", "squared_error")
+PRUNE_RISKS = ("error", "impurity", "squared_error", "cost")
 
 _LEAF = -1
 # Alphas closer than this (relative) are one alpha: tied weakest links computed
@@ -60,12 +62,134 @@ _GAIN_RTOL = 1e-12
 _RISK_RTOL = 1e-14
 
 
+def check_costs(
+    classes: np.ndarray, loss_matrix=None, priors="data", owner: str = "pruning_path"
+) -> tuple[np.ndarray | None, str | np.ndarray]:
+    """Validate a loss matrix and priors given in ``classes`` order.
+
+    Parameters
+    ----------
+    classes : ndarray of shape (n_classes,)
+        The class labels the matrix and the priors are indexed by.
+    loss_matrix : array-like of shape (n_classes, n_classes), optional
+        ``L[i, j]``: the cost of predicting class ``j`` when the truth is ``i``;
+        finite, non-negative, zero on the diagonal. ``None`` means 0-1 loss.
+    priors : "data", "equal" or array-like of shape (n_classes,), default="data"
+        Class priors ``pi``: the training data's class shares, equal shares, or
+        given probabilities (non-negative, summing to 1).
+    owner : str
+        Who is asking, for the error message.
+
+    Returns
+    -------
+    (ndarray or None, "data" or ndarray)
+        The loss matrix as floats, and the priors (``"equal"`` turned into an array).
+    """
+    k = len(classes)
+    if loss_matrix is not None:
+        L = np.asarray(loss_matrix, dtype=float) if _numeric(loss_matrix) else None
+        if (
+            L is None
+            or L.shape != (k, k)
+            or not np.all(np.isfinite(L))
+            or np.any(L < 0)
+            or np.any(np.diag(L) != 0)
+        ):
+            raise parameter_error(
+                "loss_matrix",
+                owner,
+                f"a {k} x {k} array in classes_ order {list(classes)} (rows: true class, "
+                "columns: predicted class), finite, non-negative, with a zero diagonal",
+                loss_matrix,
+            )
+        loss_matrix = L
+    if isinstance(priors, str) and priors in ("data", "equal"):
+        return loss_matrix, ("data" if priors == "data" else np.full(k, 1.0 / k))
+    pi = np.asarray(priors, dtype=float) if _numeric(priors) else None
+    if (
+        pi is None
+        or pi.shape != (k,)
+        or not np.all(np.isfinite(pi))
+        or np.any(pi < 0)
+        or abs(pi.sum() - 1.0) > 1e-9
+    ):
+        raise parameter_error(
+            "priors",
+            owner,
+            f'"data", "equal" or {k} non-negative probabilities summing to 1 in classes_ '
+            f"order {list(classes)}",
+            priors,
+        )
+    return loss_matrix, pi
+
+
+def _numeric(value) -> bool:
+    try:
+        np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        return False
+    return not isinstance(value, (str, bytes))
+
+
+def node_class_costs(
+    estimator: BaseDecisionTree, loss_matrix=None, priors="data", classes=None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Every node's expected cost of predicting each class, and the node's best class.
+
+    With priors ``pi`` and training class totals ``N_i``, predicting class ``j`` at
+    node ``t`` costs ``sum_i L(i, j) pi_i N_i(t) / N_i`` (Breiman et al. 1984, ch. 4);
+    with data priors ``pi_i = N_i / N`` this is ``sum_i L(i, j) N_i(t) / N``.
+    Counts are weighted by the training weights the tree was grown with.
+
+    Parameters
+    ----------
+    estimator : DecisionTreeClassifier
+        A fitted single-output classification tree.
+    loss_matrix, priors
+        As in :func:`check_costs`, in ``classes`` order; ``None`` is 0-1 loss.
+    classes : ndarray, optional
+        The labels ``loss_matrix`` and ``priors`` are indexed by (by default the
+        tree's ``classes_``); the tree's classes must be among them.
+
+    Returns
+    -------
+    cost : ndarray of shape (node_count, n_tree_classes)
+        ``cost[t, j]``, as a share of the training weight.
+    best : ndarray of shape (node_count,)
+        The index (in the tree's ``classes_``) of the cheapest class; ties go to
+        the first.
+    """
+    tree = estimator.tree_
+    own = np.asarray(estimator.classes_)
+    classes = own if classes is None else np.asarray(classes)
+    L, pi = check_costs(classes, loss_matrix, priors)
+    pos = np.searchsorted(classes, own)
+    if np.any(pos >= classes.size) or np.any(classes[np.minimum(pos, classes.size - 1)] != own):
+        raise parameter_error("classes", "node_class_costs", f"a superset of {list(own)}", classes)
+    counts = tree.value[:, 0, :] * tree.weighted_n_node_samples[:, None]
+    if isinstance(pi, str):
+        adjusted = counts / tree.weighted_n_node_samples[0]
+    else:
+        sub = pi[pos]
+        if sub.sum() <= 0:
+            raise parameter_error("priors", "node_class_costs", "positive on some class", priors)
+        adjusted = counts * (sub / sub.sum() / counts[0])
+    k = own.size
+    L = 1.0 - np.eye(k) if L is None else L[np.ix_(pos, pos)]
+    cost = adjusted @ L
+    return cost, np.argmin(cost, axis=1)
+
+
 def node_risks(
     estimator: BaseDecisionTree,
     risk: str,
     X: np.ndarray | None = None,
     y: np.ndarray | None = None,
     sample_weight: np.ndarray | None = None,
+    *,
+    loss_matrix=None,
+    priors="data",
+    classes=None,
 ) -> np.ndarray:
     """Risk R(t) of every node of a fitted tree, as a share of the training weight.
 
@@ -73,15 +197,20 @@ def node_risks(
     ----------
     estimator : DecisionTreeClassifier or DecisionTreeRegressor
         A fitted single-output tree.
-    risk : {"error", "impurity", "squared_error"}
+    risk : {"error", "impurity", "squared_error", "cost"}
         ``"error"``: resubstitution misclassification of the node's majority class
-        (classification only). ``"impurity"``: the growing criterion's node impurity,
-        as scikit-learn's ``cost_complexity_pruning_path`` uses. ``"squared_error"``:
+        (classification only; with priors other than the data's, the 0-1 case of
+        ``"cost"``). ``"impurity"``: the growing criterion's node impurity, as
+        scikit-learn's ``cost_complexity_pruning_path`` uses. ``"squared_error"``:
         the node's sum of squared errors about its prediction over the total weight
-        (regression only).
+        (regression only). ``"cost"``: ``min_j sum_i L(i, j) pi_i N_i(t) / N_i``
+        under the loss matrix and priors (classification only; Breiman et al. 1984,
+        ch. 4), which is ``"error"`` for 0-1 loss and data priors.
     X, y, sample_weight : array-like, optional
         The training rows. Needed only for ``"squared_error"`` when the tree was not
         grown with a squared-error criterion, whose node impurity is that risk already.
+    loss_matrix, priors, classes
+        For ``"cost"`` (and ``"error"`` with priors): see :func:`node_class_costs`.
 
     Returns
     -------
@@ -92,7 +221,7 @@ def node_risks(
     if tree.n_outputs != 1:
         raise parameter_error("estimator", "pruning_path", "a single-output tree", estimator)
     classifier = is_classifier(estimator)
-    allowed = ("error", "impurity") if classifier else ("impurity", "squared_error")
+    allowed = ("error", "impurity", "cost") if classifier else ("impurity", "squared_error")
     if risk not in allowed:
         task = "classification" if classifier else "regression"
         raise parameter_error("risk", "pruning_path", f"one of {allowed} for {task}", risk)
@@ -102,6 +231,12 @@ def node_risks(
         risk == "squared_error" and estimator.criterion in ("squared_error", "friedman_mse")
     ):
         r = weight * tree.impurity / total
+    elif risk == "cost" or (risk == "error" and not _is_data(priors)):
+        # "error" under priors ignores the loss matrix: it is the 0-1 case
+        cost, _ = node_class_costs(
+            estimator, loss_matrix if risk == "cost" else None, priors, classes
+        )
+        r = cost.min(axis=1)
     elif risk == "error":
         class_weight = tree.value[:, 0, :] * weight[:, None]
         r = (weight - class_weight.max(axis=1)) / total
@@ -124,6 +259,10 @@ def node_risks(
     # rounding is no risk, or its split would get a meaningless tiny alpha
     r = np.where(r <= _RISK_RTOL * abs(r[0]), 0.0, r)
     return r
+
+
+def _is_data(priors) -> bool:
+    return isinstance(priors, str) and priors == "data"
 
 
 def cart_candidates(alphas: np.ndarray) -> np.ndarray:
@@ -288,6 +427,19 @@ class PruningPath:
         Tree structure, for mapping full-tree leaves to subtree leaves.
     node_risk : ndarray of shape (node_count,)
         ``R(t)`` of every node.
+    node_class : ndarray of shape (node_count,) or None
+        Classifiers: the index (in ``estimator.classes_``) of the class every node
+        predicts as a leaf: the majority class, or under a loss matrix or priors
+        the class of least expected cost (:func:`node_class_costs`).
+    node_counts : ndarray of shape (node_count, n_classes) or None
+        Classifiers: the node's training class counts (weighted as the tree was grown).
+    loss_matrix : ndarray or None
+        The loss matrix the path and ``node_class`` used, in ``classes`` order.
+    priors : "data" or ndarray
+        The priors they used, in ``classes`` order.
+    classes : ndarray or None
+        The labels ``loss_matrix`` and ``priors`` are indexed by (a superset of the
+        tree's ``classes_``: a fold's tree may lack a rare class).
     """
 
     estimator: BaseDecisionTree
@@ -299,6 +451,11 @@ class PruningPath:
     parent: np.ndarray
     depth: np.ndarray
     node_risk: np.ndarray
+    node_class: np.ndarray | None = None
+    node_counts: np.ndarray | None = None
+    loss_matrix: np.ndarray | None = None
+    priors: str | np.ndarray = "data"
+    classes: np.ndarray | None = None
 
     @property
     def parent_alpha(self) -> np.ndarray:
@@ -355,6 +512,18 @@ class PruningPath:
         leaves = self.estimator.apply(X)
         return self.estimator.tree_.value[self.leaf_map(alpha)[leaves], 0, :]
 
+    def predict(self, X, alpha: float) -> np.ndarray:
+        """Predictions of the optimal subtree at ``alpha``, without rebuilding it.
+
+        For a classifier, each leaf predicts :attr:`node_class` (the cost-minimising
+        class under a loss matrix or priors; else the majority class, as the pruned
+        tree's own ``predict``); for a regressor, the leaf's value.
+        """
+        leaves = self.leaf_map(alpha)[self.estimator.apply(X)]
+        if self.node_class is None:
+            return self.estimator.tree_.value[leaves, 0, 0]
+        return np.asarray(self.estimator.classes_)[self.node_class[leaves]]
+
     def prune(self, alpha: float) -> BaseDecisionTree:
         """A copy of the full tree pruned to the optimal subtree at ``alpha``.
 
@@ -401,7 +570,7 @@ class PruningPath:
             yi = np.fromiter((class_index.get(v, k) for v in np.asarray(y)), np.intp, len(y))
             counts = np.bincount(row_leaf * (k + 1) + yi, minlength=leaves.size * (k + 1))
             counts = counts.reshape(leaves.size, k + 1)
-            predicted = tree.value[:, 0, :].argmax(axis=1)
+            predicted = self.node_class
             totals = counts.sum(axis=1)
         else:
             yv = np.asarray(y, dtype=float)
@@ -435,6 +604,10 @@ def pruning_path(
     X: np.ndarray | None = None,
     y: np.ndarray | None = None,
     sample_weight: np.ndarray | None = None,
+    *,
+    loss_matrix=None,
+    priors="data",
+    classes=None,
 ) -> PruningPath:
     """Weakest-link pruning path of a fitted tree under a chosen pruning risk.
 
@@ -442,12 +615,21 @@ def pruning_path(
     ----------
     estimator : DecisionTreeClassifier or DecisionTreeRegressor
         A fitted single-output tree; it is read, never modified.
-    risk : {"error", "impurity", "squared_error"}, default="impurity"
+    risk : {"error", "impurity", "squared_error", "cost"}, default="impurity"
         The pruning risk R(t); see :func:`node_risks`. ``"impurity"`` reproduces
         scikit-learn's ``cost_complexity_pruning_path`` (with tied alphas merged).
     X, y, sample_weight : array-like, optional
         Training rows, needed only by ``"squared_error"`` on a tree grown with a
         criterion other than squared error.
+    loss_matrix : array-like of shape (n_classes, n_classes), optional
+        ``L[i, j]``, the cost of predicting ``j`` when the truth is ``i`` (rows true,
+        columns predicted), in ``classes`` order. Used by the ``"cost"`` risk and by
+        every leaf's predicted class (:attr:`PruningPath.node_class`), whatever the risk.
+    priors : "data", "equal" or array-like of shape (n_classes,), default="data"
+        Class priors, in ``classes`` order; used as the loss matrix is.
+    classes : array-like, optional
+        The labels ``loss_matrix`` and ``priors`` are indexed by; by default the
+        tree's ``classes_``.
 
     Returns
     -------
@@ -467,8 +649,30 @@ def pruning_path(
     check_is_fitted(estimator, "tree_")
     if risk not in PRUNE_RISKS:
         raise parameter_error("risk", "pruning_path", f"one of {PRUNE_RISKS}", risk)
-    r = node_risks(estimator, risk, X, y, sample_weight)
+    node_class = node_counts = None
     tree = estimator.tree_
+    if is_classifier(estimator):
+        classes = np.asarray(estimator.classes_ if classes is None else classes)
+        loss_matrix, priors = check_costs(classes, loss_matrix, priors)
+        node_counts = tree.value[:, 0, :] * tree.weighted_n_node_samples[:, None]
+        if loss_matrix is None and _is_data(priors):
+            node_class = tree.value[:, 0, :].argmax(axis=1)
+        else:
+            node_class = node_class_costs(estimator, loss_matrix, priors, classes)[1]
+    elif loss_matrix is not None or not _is_data(priors):
+        raise parameter_error(
+            "loss_matrix", "pruning_path", "None for a regressor (and priors 'data')", loss_matrix
+        )
+    r = node_risks(
+        estimator,
+        risk,
+        X,
+        y,
+        sample_weight,
+        loss_matrix=loss_matrix,
+        priors=priors,
+        classes=classes,
+    )
     left = tree.children_left.astype(np.intp)
     right = tree.children_right.astype(np.intp)
     depth, parent = _depths_and_parents(left, right)
@@ -507,6 +711,11 @@ def pruning_path(
         parent=parent,
         depth=depth,
         node_risk=r,
+        node_class=node_class,
+        node_counts=node_counts,
+        loss_matrix=loss_matrix,
+        priors=priors,
+        classes=classes,
     )
 
 
