@@ -556,46 +556,11 @@ class PruningPath:
             Summed loss at each alpha: the number of misclassified rows for a
             classifier, the sum of squared errors for a regressor.
         """
-        est = self.estimator
-        tree = est.tree_
-        alphas = np.asarray(alphas, dtype=float)
-        if np.any(np.diff(alphas) < 0):
-            raise parameter_error("alphas", "PruningPath.losses", "sorted ascending", alphas)
-        leaf_of_row = est.apply(X)
-        leaves, row_leaf = np.unique(leaf_of_row, return_inverse=True)
-        if is_classifier(est):
-            class_index = {c: i for i, c in enumerate(est.classes_)}
-            k = len(class_index)
-            # labels never seen in training count as errors under every subtree
-            yi = np.fromiter((class_index.get(v, k) for v in np.asarray(y)), np.intp, len(y))
-            counts = np.bincount(row_leaf * (k + 1) + yi, minlength=leaves.size * (k + 1))
-            counts = counts.reshape(leaves.size, k + 1)
-            predicted = self.node_class
-            totals = counts.sum(axis=1)
-        else:
-            yv = np.asarray(y, dtype=float)
-            n = np.bincount(row_leaf, minlength=leaves.size).astype(float)
-            s1 = np.bincount(row_leaf, weights=yv, minlength=leaves.size)
-            s2 = np.bincount(row_leaf, weights=yv * yv, minlength=leaves.size)
-            value = tree.value[:, 0, 0]
-        node_alpha, parent_alpha = self.node_alpha, self.parent_alpha
-        diff = np.zeros(alphas.size + 1)
-        leaf_slot = np.arange(leaves.size)
-        node = leaves.copy()
-        while node.size:
-            lo = np.searchsorted(alphas, node_alpha[node], side="left")
-            hi = np.searchsorted(alphas, parent_alpha[node], side="left")
-            if is_classifier(est):
-                loss = totals[leaf_slot] - counts[leaf_slot, predicted[node]]
-            else:
-                v = value[node]
-                loss = s2[leaf_slot] - 2 * v * s1[leaf_slot] + v * v * n[leaf_slot]
-            live = lo < hi
-            diff += np.bincount(lo[live], weights=loss[live], minlength=alphas.size + 1)
-            diff -= np.bincount(hi[live], weights=loss[live], minlength=alphas.size + 1)
-            up = self.parent[node] >= 0
-            node, leaf_slot = self.parent[node[up]], leaf_slot[up]
-        return np.cumsum(diff)[: alphas.size]
+        from .losses import candidate_losses, leaf_counts
+
+        held = leaf_counts(self.estimator, X, y)
+        name = "error" if is_classifier(self.estimator) else "mse"
+        return candidate_losses(self, held, alphas, name, totals=True)[name]
 
 
 def pruning_path(
