@@ -36,6 +36,7 @@ from .losses import SELECT_BY, candidate_losses, leaf_counts, parse_smoothing
 from .pruning import PruningPath, cart_candidates, check_costs, pruning_path
 
 __all__ = [
+    "RULE_SPELLINGS",
     "AlphaSelection",
     "FixedAlphaRule",
     "MinimumRule",
@@ -159,7 +160,10 @@ class FixedAlphaRule(SelectionRule):
 
 _SE_SPELLING = re.compile(r"^(\d+(?:\.\d+)?)se$")
 _FIXED_SPELLING = re.compile(r"^fixed(\d+(?:\.\d+)?(?:e-?\d+)?)$")
-_RULE_TEXT = '"min", a k-SE rule spelled like "1se" or "0.5se", or a fixed rule like "fixed0.01"'
+#: How selection rules are spelled, for messages.
+RULE_SPELLINGS = (
+    '"min", a k-SE rule spelled like "1se" or "0.5se", or a fixed rule like "fixed0.01"'
+)
 
 
 def parse_rule(rule: str | SelectionRule) -> SelectionRule:
@@ -185,7 +189,7 @@ def parse_rule(rule: str | SelectionRule) -> SelectionRule:
         match = _FIXED_SPELLING.match(rule)
         if match:
             return FixedAlphaRule(float(match.group(1)))
-    raise parameter_error("rule", "parse_rule", _RULE_TEXT, rule)
+    raise parameter_error("rule", "parse_rule", RULE_SPELLINGS, rule)
 
 
 @dataclass
