@@ -141,3 +141,179 @@ def test_rule_contract(spelling, mean, se, expected, why):
     # candidates it admits, the largest alpha
     best = MinimumRule().choose(mean, se)
     assert mean[chosen] >= mean[best] and chosen >= best
+
+
+# A fixed relative rule reads no curve: alpha = c * R(root) under the path's risk.
+FIXED_CASES = [
+    # (spelling, name, c)
+    ("fixed0.01", "fixed0.01", 0.01),
+    ("fixed0", "fixed0", 0.0),
+    ("fixed0.5", "fixed0.5", 0.5),
+    ("fixed1e-3", "fixed0.001", 0.001),
+]
+
+
+@pytest.mark.parametrize("spelling, name, c", FIXED_CASES)
+@pytest.mark.parametrize("risk", ["error", "impurity"])
+def test_fixed_rule_contract(spelling, name, c, risk):
+    rule = parse_rule(spelling)
+    assert rule.name == name and not rule.needs_cv and parse_rule(name) == rule
+    X, y = make_classification(300, 5, weights=[0.7, 0.3], flip_y=0.1, random_state=3)
+    selection = select_alpha(DecisionTreeClassifier(random_state=0), X, y, risk=risk, rules=[rule])
+    # no inner CV: only T_max is grown, and the curve is empty
+    assert selection.n_fits == 1 and selection.fold_losses.shape[0] == 0
+    assert selection.curve["mean"].isna().all()
+    # by hand: R(root) is the minority share under "error", the root's Gini under "impurity"
+    share = np.bincount(y) / y.size
+    root = share.min() if risk == "error" else 1 - np.sum(share**2)
+    assert selection.alpha(rule) == pytest.approx(c * root, rel=1e-12)
+
+
+@pytest.mark.parametrize("bad", ["fixed", "fixed-1", "fixedx", "fixed 1", "0.01fixed"])
+def test_parse_rule_refuses_bad_fixed_spellings(bad):
+    with pytest.raises(InvalidParameterError, match="fixed0.01"):
+        parse_rule(bad)
+
+
+def test_fixed_and_cv_rules_together_grow_the_folds_once():
+    X, y = make_classification(300, 5, flip_y=0.1, random_state=4)
+    selection = select_alpha(
+        DecisionTreeClassifier(random_state=0), X, y, cv=4, risk="error", rules=["1se", "fixed0.02"]
+    )
+    assert selection.n_fits == 5
+    assert selection.alpha("fixed0.02") == pytest.approx(0.02 * selection.path.node_risk[0])
+    assert "1se" in selection.chosen and "fixed0.02" not in selection.chosen
+
+
+# ---------------------------------------------------------------------------
+# The CV loss that chooses alpha (select_by): one pass per fold, checked against
+# scikit-learn's GridSearchCV, which refits a tree per candidate and fold.
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+@pytest.mark.parametrize(
+    "select_by, scoring, sign",
+    [("auc", "roc_auc", 1.0), ("brier", "neg_brier_score", 0.0)],
+)
+def test_curve_equals_grid_search_for_auc_and_brier(seed, select_by, scoring, sign):
+    # scikit-learn as reference library: cv_curve mean = 1 - mean_test_score (roc_auc)
+    # and -mean_test_score (neg_brier_score) over the same candidates and splitter
+    X, y = make_classification(
+        500, 8, n_informative=4, weights=[0.85, 0.15], flip_y=0.1, random_state=seed
+    )
+    tree = DecisionTreeClassifier(min_samples_leaf=2, random_state=seed)
+    splitter = StratifiedKFold(5, shuffle=True, random_state=seed)
+    selection = select_alpha(
+        tree, X, y, cv=splitter, risk="impurity", rules=["min"], select_by=select_by
+    )
+    grid = GridSearchCV(
+        tree, {"ccp_alpha": list(selection.candidates)}, cv=splitter, scoring=scoring
+    ).fit(X, y)
+    expected = sign - grid.cv_results_["mean_test_score"]
+    np.testing.assert_allclose(selection.curve["mean"], expected, atol=1e-12)
+    folds = np.vstack([grid.cv_results_[f"split{i}_test_score"] for i in range(5)])
+    np.testing.assert_allclose(selection.fold_losses, sign - folds, atol=1e-12)
+
+
+def test_select_alphas_scores_every_pair_from_one_fit_per_fold():
+    from prunebench.selection import select_alphas
+
+    X, y = make_classification(400, 6, n_informative=4, flip_y=0.1, random_state=2)
+    tree = DecisionTreeClassifier(random_state=0)
+    splitter = StratifiedKFold(4, shuffle=True, random_state=0)
+    L = np.array([[0.0, 1.0], [4.0, 0.0]])
+    risks, losses = ("error", "impurity", "cost"), ("error", "cost", "brier", "log_loss", "auc")
+    together = select_alphas(
+        tree,
+        X,
+        y,
+        cv=splitter,
+        risks=risks,
+        select_by=losses,
+        rules=["min", "1se"],
+        loss_matrix=L,
+    )
+    assert set(together) == {(r, s) for r in risks for s in losses}
+    assert all(sel.n_fits == 5 for sel in together.values())
+    for (risk, loss), sel in together.items():
+        alone = select_alpha(
+            tree,
+            X,
+            y,
+            cv=splitter,
+            risk=risk,
+            rules=["min", "1se"],
+            select_by=loss,
+            loss_matrix=L,
+        )
+        np.testing.assert_array_equal(sel.fold_losses, alone.fold_losses)
+        assert sel.chosen == alone.chosen and (sel.risk, sel.select_by) == (risk, loss)
+
+
+def test_default_curve_is_unchanged_by_the_one_pass_losses():
+    # the error curve of the default settings is the old misclassified-rows count
+    # over the fold size: compare against PruningPath.losses refitted by hand
+    from sklearn.base import clone
+
+    from prunebench.pruning import pruning_path
+
+    X, y = make_classification(300, 5, flip_y=0.2, n_classes=3, n_informative=3, random_state=6)
+    tree = DecisionTreeClassifier(random_state=0)
+    splitter = StratifiedKFold(3, shuffle=True, random_state=1)
+    selection = select_alpha(tree, X, y, cv=splitter, risk="error")
+    for i, (train, test) in enumerate(splitter.split(X, y)):
+        path = pruning_path(clone(tree).fit(X[train], y[train]), "error")
+        expected = path.losses(X[test], y[test], selection.candidates) / len(test)
+        np.testing.assert_array_equal(selection.fold_losses[i], expected)
+
+
+@pytest.mark.parametrize(
+    "class_weight, priors", [("balanced", "data"), (None, "equal"), ("balanced", "equal")]
+)
+def test_weighted_trees_choose_by_balanced_error(class_weight, priors):
+    # scikit-learn as reference library: with class_weight="balanced" (or equal
+    # priors) each fold's loss is 1 - balanced_accuracy_score of that fold's pruned tree
+    from sklearn.base import clone
+    from sklearn.metrics import balanced_accuracy_score
+
+    from prunebench.pruning import pruning_path
+
+    X, y = make_classification(
+        500, 6, n_informative=4, weights=[0.9, 0.1], flip_y=0.05, random_state=3
+    )
+    tree = DecisionTreeClassifier(class_weight=class_weight, random_state=0)
+    splitter = StratifiedKFold(4, shuffle=True, random_state=2)
+    selection = select_alpha(tree, X, y, cv=splitter, risk="error", priors=priors)
+    for i, (train, test) in enumerate(splitter.split(X, y)):
+        path = pruning_path(clone(tree).fit(X[train], y[train]), "error", priors=priors)
+        for j, alpha in enumerate(selection.candidates):
+            pred = path.predict(X[test], alpha)
+            expected = 1 - balanced_accuracy_score(y[test], pred)
+            assert selection.fold_losses[i, j] == pytest.approx(expected, abs=1e-12)
+
+
+def test_sample_weights_weight_the_held_out_loss():
+    # scikit-learn as reference library: weighted accuracy of each fold's pruned tree
+    from sklearn.base import clone
+    from sklearn.metrics import accuracy_score
+
+    from prunebench.pruning import pruning_path
+
+    X, y = make_classification(300, 5, flip_y=0.15, random_state=8)
+    w = np.random.default_rng(0).uniform(0.2, 3.0, y.size)
+    tree = DecisionTreeClassifier(random_state=0)
+    splitter = StratifiedKFold(3, shuffle=True, random_state=0)
+    selection = select_alpha(tree, X, y, cv=splitter, risk="error", sample_weight=w)
+    for i, (train, test) in enumerate(splitter.split(X, y)):
+        path = pruning_path(clone(tree).fit(X[train], y[train], sample_weight=w[train]), "error")
+        for j, alpha in enumerate(selection.candidates):
+            expected = 1 - accuracy_score(
+                y[test], path.predict(X[test], alpha), sample_weight=w[test]
+            )
+            assert selection.fold_losses[i, j] == pytest.approx(expected, abs=1e-12)
+
+
+def test_select_by_is_checked_against_the_task():
+    X, y = load_diabetes(return_X_y=True)
+    with pytest.raises(InvalidParameterError, match="'select_by' parameter of select_alphas"):
+        select_alpha(DecisionTreeRegressor(), X, y, risk="squared_error", select_by="auc")
