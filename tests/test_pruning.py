@@ -364,11 +364,54 @@ def _regression_case(seed, criterion="squared_error"):
     )
 
 
+_UNEQUAL_LOSS = np.array([[0.0, 1.0, 2.0], [5.0, 0.0, 1.0], [1.0, 8.0, 0.0]])
+_PRIORS = np.array([0.2, 0.5, 0.3])
+
+
+def _ref_cost(loss, priors):
+    def reference(tree, X, y):
+        # Breiman et al. 1984, ch. 4, by hand: R(t) = min_j sum_i L(i, j) pi_i N_i(t) / N_i
+        counts = _class_counts(tree)
+        totals = counts[0]
+        pi = totals / totals.sum() if priors is None else priors
+        risks = []
+        for row in counts:
+            risks.append(
+                min(
+                    sum(loss[i, j] * pi[i] * row[i] / totals[i] for i in range(len(row)))
+                    for j in range(len(row))
+                )
+            )
+        return np.array(risks)
+
+    return reference
+
+
 RISK_CASES = {
     "error": (_classification_case, {}, _ref_error),
     "impurity-gini": (_classification_case, {}, _ref_impurity),
     "impurity-regression": (_regression_case, {}, _ref_impurity),
     "squared_error": (_regression_case, {}, _ref_squared_error),
+    "cost-unequal": (
+        _classification_case,
+        {"costs": {"loss_matrix": _UNEQUAL_LOSS}},
+        _ref_cost(_UNEQUAL_LOSS, None),
+    ),
+    "cost-priors": (
+        _classification_case,
+        {"costs": {"loss_matrix": _UNEQUAL_LOSS, "priors": _PRIORS}},
+        _ref_cost(_UNEQUAL_LOSS, _PRIORS),
+    ),
+    "cost-zero_one": (
+        _classification_case,
+        {"costs": {"loss_matrix": 1 - np.eye(3)}},
+        _ref_error,
+    ),
+    "error-equal_priors": (
+        _classification_case,
+        {"costs": {"priors": "equal"}},
+        _ref_cost(1 - np.eye(3), np.full(3, 1 / 3)),
+    ),
     "squared_error-absolute": (
         lambda s: _regression_case(s, "absolute_error"),
         {"rows": True},
@@ -378,6 +421,7 @@ RISK_CASES = {
 
 
 def _risk_name(case: str) -> str:
+    # "cost-zero_one" is the cost risk, "error-equal_priors" the error risk, ...
     return case.split("-")[0]
 
 
@@ -389,9 +433,10 @@ def test_risk_contract(case, seed):
     tree = template.fit(X, y)
     risk = _risk_name(case)
     rows = (X, y) if options.get("rows") else (None, None)
-    r = node_risks(tree, risk, *rows)
+    settings = options.get("costs", {})
+    r = node_risks(tree, risk, *rows, **settings)
     np.testing.assert_allclose(r, reference(tree, X, y), rtol=1e-9, atol=1e-12)
-    path = pruning_path(tree, risk, *rows)
+    path = pruning_path(tree, risk, *rows, **settings)
     # the path's shape: alphas increase from 0, the trees shrink to the root
     assert path.alphas[0] == 0 and np.all(np.diff(path.alphas) > 0)
     assert np.all(np.diff(path.n_leaves) < 0) and path.n_leaves[-1] == 1
@@ -408,3 +453,99 @@ def test_risk_contract(case, seed):
         best = subtrees[tied[np.argmin(sizes[tied])]]
         assert set(np.flatnonzero(path.leaf_mask(alpha))) == set(best), (case, alpha)
         assert path.prune(alpha).get_n_leaves() == len(best)
+    if settings:
+        # by hand: each leaf predicts the class of least expected cost
+        loss = settings.get("loss_matrix", 1 - np.eye(3))
+        counts = _class_counts(tree)
+        pi = settings.get("priors")
+        pi = (
+            counts[0] / counts[0].sum()
+            if pi is None
+            else np.full(3, 1 / 3)
+            if isinstance(pi, str)
+            else pi
+        )
+        cost = (counts * pi / counts[0]) @ loss
+        # the chosen class costs the least (exact ties, as 2 x 1 + 3 x 8 = 2 x 2 + 22 x 1,
+        # go to the first class; rounding in this reference may order them either way)
+        chosen = cost[np.arange(cost.shape[0]), path.node_class]
+        np.testing.assert_allclose(chosen, cost.min(axis=1), rtol=1e-12, atol=1e-15)
+        leaf = path.leaf_map(path.alphas[1])[tree.apply(X)]
+        np.testing.assert_array_equal(
+            path.predict(X, path.alphas[1]), tree.classes_[path.node_class[leaf]]
+        )
+
+
+@pytest.mark.parametrize("seed", range(6))
+@pytest.mark.parametrize("n_classes", [2, 3])
+def test_cost_risk_with_zero_one_loss_and_data_priors_is_the_error_path(seed, n_classes):
+    # Breiman et al. 1984, ch. 4: with 0-1 loss and the data's priors the expected cost
+    # is the misclassification rate, so the two paths are the same path
+    X, y = make_classification(
+        300, 5, n_informative=3, n_classes=n_classes, flip_y=0.2, random_state=seed
+    )
+    tree = DecisionTreeClassifier(min_samples_leaf=1 + seed % 3, random_state=seed).fit(X, y)
+    error = pruning_path(tree, "error")
+    cost = pruning_path(tree, "cost", loss_matrix=1 - np.eye(n_classes), priors="data")
+    np.testing.assert_allclose(cost.node_risk, error.node_risk, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(cost.alphas, error.alphas, rtol=1e-10)
+    np.testing.assert_array_equal(cost.n_leaves, error.n_leaves)
+    np.testing.assert_array_equal(cost.node_class, error.node_class)
+    # the same subtree at every candidate; the last candidate sits exactly on the root's
+    # collapse point, where the last rounding bit of either sum decides: step past it
+    candidates = cart_candidates(error.alphas)
+    candidates[-1] *= 1 + 1e-9
+    for alpha in candidates:
+        np.testing.assert_array_equal(cost.leaf_mask(alpha), error.leaf_mask(alpha))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_equal_priors_equal_the_error_risk_of_a_balanced_tree(seed):
+    # Breiman et al. 1984, ch. 4: equal priors weigh class i's rows by 1 / N_i, which is
+    # what class_weight="balanced" does (weight N / (K N_i)); on a tree grown balanced,
+    # its error risk and the equal-priors risk are the same path
+    X, y = make_classification(
+        400, 5, n_informative=3, weights=[0.85, 0.15], flip_y=0.1, random_state=seed
+    )
+    balanced = DecisionTreeClassifier(class_weight="balanced", random_state=seed).fit(X, y)
+    error = pruning_path(balanced, "error")
+    equal = pruning_path(balanced, "cost", priors="equal")
+    np.testing.assert_allclose(equal.node_risk, error.node_risk, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(equal.alphas, error.alphas, rtol=1e-10)
+    np.testing.assert_array_equal(equal.n_leaves, error.n_leaves)
+    # and on an unweighted tree: equal priors are the error risk under balanced
+    # weights, computed by hand from the unweighted class counts
+    plain = DecisionTreeClassifier(random_state=seed).fit(X, y)
+    counts = _class_counts(plain)
+    w = y.size / (2 * np.bincount(y))
+    weighted = counts * w
+    by_hand = (weighted.sum(axis=1) - weighted.max(axis=1)) / weighted[0].sum()
+    np.testing.assert_allclose(
+        node_risks(plain, "cost", priors="equal"), by_hand, rtol=1e-12, atol=1e-15
+    )
+
+
+@pytest.mark.parametrize(
+    "kwargs, name",
+    [
+        ({"loss_matrix": np.ones((2, 2))}, "loss_matrix"),  # non-zero diagonal
+        ({"loss_matrix": [[0, -1], [1, 0]]}, "loss_matrix"),
+        ({"loss_matrix": np.zeros((3, 3))}, "loss_matrix"),  # wrong shape
+        ({"loss_matrix": "big"}, "loss_matrix"),
+        ({"priors": [0.5, 0.6]}, "priors"),
+        ({"priors": "uniform"}, "priors"),
+        ({"priors": [1.0]}, "priors"),
+    ],
+)
+def test_bad_costs_are_refused_with_one_message(kwargs, name):
+    X, y, tree = _tie_case()
+    with pytest.raises(InvalidParameterError, match=f"The '{name}' parameter of pruning_path"):
+        pruning_path(tree, "cost", **kwargs)
+
+
+def test_regression_paths_refuse_costs():
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(50, 2))
+    tree = DecisionTreeRegressor(max_depth=3).fit(X, X[:, 0])
+    with pytest.raises(InvalidParameterError, match="'loss_matrix'"):
+        pruning_path(tree, "squared_error", loss_matrix=np.zeros((1, 1)))
