@@ -230,7 +230,8 @@ default="error"
     priors : "data", "equal" or array-like of shape (n_classes,), default="data"
         Class priors in ``classes_`` order. Other than ``"data"`` they re-weight
         the classes in the path's risk, the leaves' predicted classes and the
-        held-out losses.
+        held-out losses; they replace the class shares, so they override
+        ``class_weight`` there (the trees are still grown with ``class_weight``).
     smoothing : None, "laplace" or "m<m>", default=None
         Opt-in smoothing of the leaf probabilities (Laplace, or the m-estimate
         towards the training class shares; Provost & Domingos 2003) for

@@ -173,7 +173,9 @@ def node_class_costs(
         sub = pi[pos]
         if sub.sum() <= 0:
             raise parameter_error("priors", "node_class_costs", "positive on some class", priors)
-        adjusted = counts * (sub / sub.sum() / counts[0])
+        # a class with no training weight (all its rows weighted 0) has no rows in any node
+        per_row = np.divide(sub / sub.sum(), counts[0], out=np.zeros_like(sub), where=counts[0] > 0)
+        adjusted = counts * per_row
     k = own.size
     L = 1.0 - np.eye(k) if L is None else L[np.ix_(pos, pos)]
     cost = adjusted @ L

@@ -97,6 +97,11 @@ class MinimumRule(SelectionRule):
     name = "min"
 
     def choose(self, mean: np.ndarray, se: np.ndarray) -> int:  # noqa: D102
+        mean = np.asarray(mean, dtype=float)
+        if np.isnan(mean).all():
+            # a loss undefined on every fold (AUC of one-class data): the smallest tree
+            return mean.size - 1
+        mean = np.where(np.isnan(mean), np.inf, mean)
         return int(np.flatnonzero(_at_most(mean, float(mean.min())))[-1])
 
 
@@ -122,6 +127,9 @@ class StandardErrorRule(SelectionRule):
     def choose(self, mean: np.ndarray, se: np.ndarray) -> int:  # noqa: D102
         best = MinimumRule().choose(mean, se)
         bound = float(mean[best] + self.k * se[best])
+        if np.isnan(bound):
+            return best
+        mean = np.where(np.isnan(mean), np.inf, mean)
         return int(np.flatnonzero(_at_most(mean, bound))[-1])
 
 
@@ -311,9 +319,14 @@ def _curve_stats(fold_losses: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return nan, nan.copy()
     if np.isnan(fold_losses).any():
         # a fold where a loss is undefined (AUC with one class held out) is left out
-        n = np.sum(~np.isnan(fold_losses), axis=0)
-        mean = np.nanmean(fold_losses, axis=0)
-        se = np.where(n > 1, np.nanstd(fold_losses, axis=0, ddof=1) / np.sqrt(n), 0.0)
+        ok = ~np.isnan(fold_losses)
+        n = ok.sum(axis=0)
+        filled = np.where(ok, fold_losses, 0.0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = filled.sum(axis=0) / n
+            dev = np.where(ok, fold_losses - mean, 0.0)
+            var = (dev**2).sum(axis=0) / (n - 1)
+            se = np.where(n > 1, np.sqrt(var / n), np.where(n == 1, 0.0, np.nan))
         return mean, se
     mean = fold_losses.mean(axis=0)
     se = fold_losses.std(axis=0, ddof=1) / np.sqrt(k) if k > 1 else np.zeros_like(mean)
