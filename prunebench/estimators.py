@@ -20,8 +20,9 @@ from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
 from .exceptions import parameter_error
-from .losses import SELECT_BY, leaf_probabilities, parse_smoothing
+from .losses import leaf_probabilities, parse_smoothing
 from .pruning import check_costs
+from .scoring import SELECT_BY
 from .selection import RULE_SPELLINGS, parse_rule, select_alpha
 
 __all__ = ["PrunedTreeClassifier", "PrunedTreeRegressor"]

@@ -558,7 +558,7 @@ class PruningPath:
             Summed loss at each alpha: the number of misclassified rows for a
             classifier, the sum of squared errors for a regressor.
         """
-        from .losses import candidate_losses, leaf_counts
+        from .scoring import candidate_losses, leaf_counts
 
         held = leaf_counts(self.estimator, X, y)
         name = "error" if is_classifier(self.estimator) else "mse"

@@ -9,7 +9,7 @@ cost K tree fits whatever the number of candidates.
 
 The CV curve holds, per candidate, ``mean`` (the unweighted average of the K
 fold losses: by default error rate for classification, mean squared error for
-regression; any loss of :data:`prunebench.losses.SELECT_BY` by ``select_by``)
+regression; any loss of :data:`prunebench.scoring.SELECT_BY` by ``select_by``)
 and ``se`` (the sample standard deviation of the fold losses, ddof=1, divided by
 sqrt(K)).  A selection rule turns the curve into one candidate; the fixed
 relative rule (``"fixed0.01"``: alpha = 0.01 R(root)) needs no curve, and
@@ -32,8 +32,9 @@ from sklearn.model_selection import check_cv
 from sklearn.utils.class_weight import compute_sample_weight
 
 from .exceptions import parameter_error
-from .losses import SELECT_BY, candidate_losses, leaf_counts, parse_smoothing
+from .losses import parse_smoothing
 from .pruning import PruningPath, cart_candidates, check_costs, pruning_path
+from .scoring import SELECT_BY, candidate_losses, leaf_counts
 
 __all__ = [
     "RULE_SPELLINGS",
@@ -352,8 +353,8 @@ def select_alphas(
     """Choose alpha by K-fold CV for every (pruning risk, CV loss) pair at once.
 
     ``T_max`` and every fold's tree are grown once; each fold's held-out rows are
-    applied to its tree once (:func:`prunebench.losses.leaf_counts`) and serve
-    every risk's path and every loss (:func:`prunebench.losses.candidate_losses`).
+    applied to its tree once (:func:`prunebench.scoring.leaf_counts`) and serve
+    every risk's path and every loss (:func:`prunebench.scoring.candidate_losses`).
     When no rule reads a CV curve (only fixed rules), no fold tree is grown.
 
     Parameters
@@ -369,7 +370,7 @@ def select_alphas(
     risks : sequence of str, default=("impurity",)
         Pruning risks (:data:`prunebench.pruning.PRUNE_RISKS`).
     select_by : sequence of str, optional
-        CV losses (:data:`prunebench.losses.SELECT_BY`); by default ``("error",)``
+        CV losses (:data:`prunebench.scoring.SELECT_BY`); by default ``("error",)``
         for a classifier and ``("mse",)`` for a regressor.
     rules : sequence of str or SelectionRule, default=("1se",)
         Every rule is applied to every curve.
@@ -515,7 +516,7 @@ def select_alpha(
     before_fit : callable, optional
         Called before every fold's fit (a study's time limit checks its deadline here).
     select_by : str, optional
-        The CV loss (:data:`prunebench.losses.SELECT_BY`); by default ``"error"``
+        The CV loss (:data:`prunebench.scoring.SELECT_BY`); by default ``"error"``
         for a classifier, ``"mse"`` for a regressor.
     loss_matrix, priors, smoothing
         As in :func:`select_alphas`.
