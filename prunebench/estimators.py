@@ -266,7 +266,7 @@ default="error"
     >>> from sklearn.datasets import load_breast_cancer
     >>> X, y = load_breast_cancer(return_X_y=True)
     >>> model = PrunedTreeClassifier(random_state=0).fit(X, y)
-    >>> model.get_n_leaves() < model.full_tree_.get_n_leaves()
+    >>> bool(model.get_n_leaves() < model.full_tree_.get_n_leaves())
     True
     """
 

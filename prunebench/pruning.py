@@ -611,7 +611,7 @@ def pruning_path(
     >>> X, y = load_iris(return_X_y=True)
     >>> path = pruning_path(DecisionTreeClassifier(random_state=0).fit(X, y), "error")
     >>> [int(n) for n in path.n_leaves]
-    [7, 5, 3, 2, 1]
+    [9, 7, 4, 3, 2, 1]
     """
     check_is_fitted(estimator, "tree_")
     if risk not in PRUNE_RISKS:
