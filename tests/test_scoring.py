@@ -115,3 +115,36 @@ def test_one_pass_refuses_wrong_loss_for_the_task():
         scoring.candidate_losses(path, held, cart_candidates(path.alphas), "mse")
     with pytest.raises(InvalidParameterError, match="two classes"):
         scoring.candidate_losses(path, held, cart_candidates(path.alphas), "average_precision")
+
+
+@pytest.mark.parametrize("n_cand", [7, 2**15 + 3])
+def test_ranking_by_candidate_matches_brute_force(n_cand):
+    # by hand: each candidate's AUC and AP from the leaves live at it, through the
+    # metrics checked against scikit-learn above; the second size takes the int32 sort
+    rng = np.random.default_rng(n_cand)
+    m = 12
+    score = rng.integers(0, 4, m) / 4.0  # repeated scores: ties across leaves
+    pos, neg = rng.integers(0, 5, m).astype(float), rng.integers(0, 5, m).astype(float)
+    lo = rng.integers(0, n_cand, m)
+    hi = np.minimum(lo + rng.integers(0, 4, m), n_cand)
+    probe = np.unique(np.r_[lo, np.maximum(hi - 1, 0)])
+    totals = (pos.sum(), neg.sum())  # as if every row were live everywhere
+    auc, ap = scoring._ranking_losses(score, pos, neg, totals, lo, hi, n_cand, True)
+    for c in probe:
+        live = (lo <= c) & (c < hi)
+        p, n = pos[live], neg[live]
+        if not live.any():
+            assert auc[c] == 0 or np.isnan(auc[c])
+            continue
+        s = score[live]
+        pairs = sum(
+            p[i] * n[j] * (1.0 if s[i] > s[j] else 0.5 if s[i] == s[j] else 0.0)
+            for i in range(s.size)
+            for j in range(s.size)
+        )
+        assert auc[c] == pytest.approx(pairs / (totals[0] * totals[1]), abs=1e-12)
+        y = np.r_[np.ones(int(p.sum())), np.zeros(int(n.sum()))]
+        rows = np.r_[np.repeat(s, p.astype(int)), np.repeat(s, n.astype(int))]
+        if p.sum() > 0:
+            expected = losses.average_precision(y, rows) * p.sum() / totals[0]
+            assert ap[c] == pytest.approx(expected, abs=1e-12)

@@ -317,3 +317,24 @@ def test_select_by_is_checked_against_the_task():
     X, y = load_diabetes(return_X_y=True)
     with pytest.raises(InvalidParameterError, match="'select_by' parameter of select_alphas"):
         select_alpha(DecisionTreeRegressor(), X, y, risk="squared_error", select_by="auc")
+
+
+def test_fixed_rules_alone_skip_every_inner_fit_for_every_pair():
+    from prunebench.selection import select_alphas
+
+    X, y = make_classification(300, 5, flip_y=0.1, random_state=5)
+    out = select_alphas(
+        DecisionTreeClassifier(random_state=0),
+        X,
+        y,
+        risks=("error", "impurity"),
+        select_by=("error", "auc"),
+        rules=["fixed0.01", "fixed0.1"],
+    )
+    assert all(sel.n_fits == 1 and sel.fold_losses.shape[0] == 0 for sel in out.values())
+    for (risk, _), sel in out.items():
+        assert sel.path.risk == risk
+        # alpha = c * R(root) of that risk's path (by definition of the rule)
+        assert sel.alpha("fixed0.1") == pytest.approx(0.1 * sel.path.risks[-1], rel=1e-12)
+        k = sel.path.subtree_index(sel.alpha("fixed0.1"))
+        assert sel.path.prune(sel.alpha("fixed0.1")).get_n_leaves() == sel.path.n_leaves[k]
