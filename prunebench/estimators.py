@@ -19,9 +19,9 @@ from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
+from .costs import check_costs
 from .exceptions import parameter_error
 from .losses import leaf_probabilities, parse_smoothing
-from .pruning import check_costs
 from .scoring import SELECT_BY
 from .selection import RULE_SPELLINGS, parse_rule, select_alpha
 

@@ -31,9 +31,10 @@ from sklearn.base import BaseEstimator, clone, is_classifier
 from sklearn.model_selection import check_cv
 from sklearn.utils.class_weight import compute_sample_weight
 
+from .costs import _is_data, check_costs
 from .exceptions import parameter_error
 from .losses import parse_smoothing
-from .pruning import PruningPath, cart_candidates, check_costs, pruning_path
+from .pruning import PruningPath, cart_candidates, pruning_path
 from .scoring import SELECT_BY, candidate_losses, leaf_counts
 
 __all__ = [
@@ -307,10 +308,6 @@ def validation_weights(
         factor[present] = np.asarray(pi, float)[present] / per_class[present]
         w = w * factor[yi]
     return w
-
-
-def _is_data(priors) -> bool:
-    return isinstance(priors, str) and priors == "data"
 
 
 def _curve_stats(fold_losses: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -525,24 +525,6 @@ def test_equal_priors_equal_the_error_risk_of_a_balanced_tree(seed):
     )
 
 
-@pytest.mark.parametrize(
-    "kwargs, name",
-    [
-        ({"loss_matrix": np.ones((2, 2))}, "loss_matrix"),  # non-zero diagonal
-        ({"loss_matrix": [[0, -1], [1, 0]]}, "loss_matrix"),
-        ({"loss_matrix": np.zeros((3, 3))}, "loss_matrix"),  # wrong shape
-        ({"loss_matrix": "big"}, "loss_matrix"),
-        ({"priors": [0.5, 0.6]}, "priors"),
-        ({"priors": "uniform"}, "priors"),
-        ({"priors": [1.0]}, "priors"),
-    ],
-)
-def test_bad_costs_are_refused_with_one_message(kwargs, name):
-    X, y, tree = _tie_case()
-    with pytest.raises(InvalidParameterError, match=f"The '{name}' parameter of pruning_path"):
-        pruning_path(tree, "cost", **kwargs)
-
-
 def test_regression_paths_refuse_costs():
     rng = np.random.default_rng(0)
     X = rng.normal(size=(50, 2))
