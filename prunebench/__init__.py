@@ -1,8 +1,10 @@
 """prunebench: evidence for how decision trees are grown and pruned by default.
 
-The pruning engine (:mod:`prunebench.pruning`), the CV choice of alpha
+The pruning engine (:mod:`prunebench.pruning`), the one-pass scoring of every
+candidate alpha (:mod:`prunebench.scoring`), the CV choice of alpha
 (:mod:`prunebench.selection`) and the estimators built on them
-(:mod:`prunebench.estimators`) are re-exported here.  They are imported on first
+(:mod:`prunebench.estimators`) are re-exported here; the per-fold metrics are in
+:mod:`prunebench.losses`.  They are imported on first
 use (a module-level ``__getattr__``), so ``import prunebench`` and the command
 line start without scikit-learn, pandas, matplotlib or Optuna.
 """
@@ -40,16 +42,26 @@ _LAZY = {
     "StandardErrorRule": "selection",
     "parse_rule": "selection",
     "select_alpha": "selection",
+    "select_alphas": "selection",
+    "validation_weights": "selection",
+    "FixedAlphaRule": "selection",
+    "SELECT_BY": "scoring",
+    "LeafCounts": "scoring",
+    "candidate_losses": "scoring",
+    "leaf_counts": "scoring",
     "Configuration": "vocabulary",
 }
 
 __all__ = [
     "PRUNE_RISKS",
+    "SELECT_BY",
     "AlphaSelection",
     "ConductError",
     "Configuration",
     "DatasetError",
+    "FixedAlphaRule",
     "InvalidParameterError",
+    "LeafCounts",
     "MinimumRule",
     "PrunebenchError",
     "PrunedTreeClassifier",
@@ -64,11 +76,15 @@ __all__ = [
     "StudyError",
     "TrialTimeout",
     "__version__",
+    "candidate_losses",
     "cart_candidates",
+    "leaf_counts",
     "open_results",
     "parse_rule",
     "pruning_path",
     "select_alpha",
+    "select_alphas",
+    "validation_weights",
 ]
 
 

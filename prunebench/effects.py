@@ -405,7 +405,7 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     Parameters
     ----------
     folds : DataFrame
-        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
+        One row per trial, outer fold and arm (:func:`prunebench.results.load_folds`).
     family : {"classification", "regression"}
     metric : str
 
@@ -570,7 +570,7 @@ def factor_effects(
     Parameters
     ----------
     folds : DataFrame
-        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
+        One row per trial, outer fold and arm (:func:`prunebench.results.load_folds`).
     levels : dict
         Factor -> levels in the study file's order (the first is the reference), or
         family -> such a mapping; ``None`` or ``"none"`` for an unlimited depth.

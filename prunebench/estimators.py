@@ -2,7 +2,11 @@
 
 ``PrunedTreeClassifier`` and ``PrunedTreeRegressor`` grow ``T_max`` with the
 usual growth settings, compute its weakest-link path under ``prune_risk``, choose
-alpha by K-fold cross-validation with ``rule``, and predict with the pruned tree.
+alpha by K-fold cross-validation of the loss ``select_by`` with ``rule`` (or take a
+fixed relative alpha, ``rule="fixed0.01"``, with no CV), and predict with the
+pruned tree.  The classifier also takes CART's loss matrix and priors (Breiman et
+al. 1984, ch. 4), used by the path, the CV loss and the prediction alike, and an
+opt-in smoothing of its leaf probabilities.
 """
 
 from __future__ import annotations
@@ -15,8 +19,11 @@ from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
+from .costs import check_costs
 from .exceptions import parameter_error
-from .selection import parse_rule, select_alpha
+from .losses import leaf_probabilities, parse_smoothing
+from .scoring import SELECT_BY
+from .selection import RULE_SPELLINGS, parse_rule, select_alpha
 
 __all__ = ["PrunedTreeClassifier", "PrunedTreeRegressor"]
 
@@ -51,6 +58,7 @@ class _PrunedTree(BaseEstimator):
 
     _tree_class: type
     _risks: tuple[str, ...]
+    _family: str
 
     def _constraints(self) -> dict:
         # every parameter's constraint in one table, checked in one place; growth
@@ -64,6 +72,10 @@ class _PrunedTree(BaseEstimator):
             "max_depth": (lambda v: v is None or int1(v), f"None or {int1_text}"),
             "prune_risk": (lambda v: v in self._risks, f"one of {self._risks}"),
             "cv": (_cv_ok, "an int >= 2, a cross-validation splitter or an iterable of splits"),
+            "select_by": (
+                lambda v: isinstance(v, str) and v in SELECT_BY[self._family],
+                f"one of {SELECT_BY[self._family]}",
+            ),
         }
 
     def _check_params(self) -> None:
@@ -75,9 +87,21 @@ class _PrunedTree(BaseEstimator):
         try:
             self._rule = parse_rule(self.rule)
         except ValueError:
-            raise parameter_error(
-                "rule", owner, '"min" or a k-SE rule spelled like "1se" or "0.5se"', self.rule
-            ) from None
+            raise parameter_error("rule", owner, RULE_SPELLINGS, self.rule) from None
+        self._costs = {}
+        if self._family == "classification":
+            try:
+                parse_smoothing(self.smoothing)
+            except ValueError:
+                raise parameter_error(
+                    "smoothing", owner, 'None, "laplace" or an m-estimate like "m2"', self.smoothing
+                ) from None
+            loss_matrix, priors = check_costs(self.classes_, self.loss_matrix, self.priors, owner)
+            self._costs = {"loss_matrix": loss_matrix, "priors": self.priors}
+            if self.select_by == "average_precision" and len(self.classes_) != 2:
+                raise parameter_error(
+                    "select_by", owner, "'average_precision' only for two classes", self.select_by
+                )
 
     def _grow_template(self):
         return self._tree_class(**{name: getattr(self, name) for name in self._growth_params()})
@@ -95,6 +119,9 @@ class _PrunedTree(BaseEstimator):
             risk=self.prune_risk,
             rules=[self._rule],
             sample_weight=sample_weight,
+            select_by=self.select_by,
+            smoothing=getattr(self, "smoothing", None),
+            **self._costs,
         )
         self.selection_ = selection
         self.full_tree_ = selection.tree
@@ -102,9 +129,15 @@ class _PrunedTree(BaseEstimator):
         self.cv_curve_ = selection.curve
         self.ccp_alpha_ = selection.alpha(self._rule)
         self.pruned_tree_ = selection.path.prune(self.ccp_alpha_)
+        # node i of the pruned tree is node _kept_nodes[i] of the full tree
+        self._kept_nodes = np.flatnonzero(selection.path.node_mask(self.ccp_alpha_))
         self.tree_ = self.pruned_tree_.tree_
         self.n_outputs_ = 1
         return self
+
+    def _full_tree_nodes(self, X) -> np.ndarray:
+        """The full tree's node of every row's pruned-tree leaf."""
+        return self._kept_nodes[self.pruned_tree_.apply(X)]
 
     def _validated(self, X):
         check_is_fitted(self, "pruned_tree_")
@@ -170,14 +203,41 @@ class PrunedTreeClassifier(ClassifierMixin, _PrunedTree):
 max_leaf_nodes, min_impurity_decrease, class_weight, random_state
         Growth settings, passed to :class:`sklearn.tree.DecisionTreeClassifier`
         for ``T_max`` and for every fold's tree.
-    prune_risk : {"error", "impurity"}, default="error"
+    prune_risk : {"error", "impurity", "cost"}, default="error"
         Risk R(t) of the pruning path: resubstitution misclassification (the
-        classic CART choice) or the growing criterion's impurity (scikit-learn's
-        ``ccp_alpha`` path).
+        classic CART choice), the growing criterion's impurity (scikit-learn's
+        ``ccp_alpha`` path), or
+        ``"cost"``: the expected cost under ``loss_matrix`` and ``priors``,
+        ``min_j sum_i L(i, j) pi_i N_i(t) / N_i`` (Breiman et al. 1984, ch. 4).
     cv : int, splitter or iterable, default=10
         Folds for choosing alpha; an int means stratified K-fold without shuffling.
     rule : str or SelectionRule, default="1se"
-        ``"min"`` or a k-SE rule such as ``"1se"`` or ``"0.5se"``.
+        ``"min"``, a k-SE rule such as ``"1se"`` or ``"0.5se"``, or a fixed
+        relative alpha such as ``"fixed0.01"`` (alpha = 0.01 R(root), no CV).
+    select_by : {"error", "cost", "brier", "log_loss", "auc", "average_precision"}, \
+default="error"
+        The held-out loss the CV curve averages: misclassification rate, expected
+        cost under ``loss_matrix``, Brier score (binary form for two classes), log
+        loss (clipped at 1e-15), 1 - ROC AUC (one-vs-rest macro for three or more
+        classes) or 1 - average precision (two classes). When the trees are grown
+        with ``sample_weight`` or ``class_weight``, the held-out rows are weighted
+        the same way (``class_weight="balanced"`` with ``"error"`` gives the
+        balanced error).
+    loss_matrix : array-like of shape (n_classes, n_classes), default=None
+        ``L[i, j]``: the cost of predicting ``classes_[j]`` when the truth is
+        ``classes_[i]`` (rows true, columns predicted); zero diagonal,
+        non-negative. ``None`` is 0-1 loss. Used by the ``"cost"`` risk, the
+        ``"cost"`` CV loss and every leaf's predicted class.
+    priors : "data", "equal" or array-like of shape (n_classes,), default="data"
+        Class priors in ``classes_`` order. Other than ``"data"`` they re-weight
+        the classes in the path's risk, the leaves' predicted classes and the
+        held-out losses; they replace the class shares, so they override
+        ``class_weight`` there (the trees are still grown with ``class_weight``).
+    smoothing : None, "laplace" or "m<m>", default=None
+        Opt-in smoothing of the leaf probabilities (Laplace, or the m-estimate
+        towards the training class shares; Provost & Domingos 2003) for
+        ``predict_proba`` and the probability CV losses. ``None`` keeps the raw
+        leaf fractions, as scikit-learn's trees.
 
     Attributes
     ----------
@@ -186,8 +246,9 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
     path_ : PruningPath
         Pruning path of the full tree.
     cv_curve_ : DataFrame
-        Columns ``alpha``, ``n_leaves``, ``mean`` (mean fold error rate) and ``se``
-        (fold standard deviation / sqrt(K)), one row per candidate alpha.
+        Columns ``alpha``, ``n_leaves``, ``mean`` (mean fold loss, ``select_by``)
+        and ``se`` (fold standard deviation / sqrt(K)), one row per candidate
+        alpha (NaN ``mean`` and ``se`` for a fixed rule, which fits no folds).
     full_tree_ : DecisionTreeClassifier
         ``T_max`` grown on all rows.
     pruned_tree_ : DecisionTreeClassifier
@@ -205,12 +266,13 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
     >>> from sklearn.datasets import load_breast_cancer
     >>> X, y = load_breast_cancer(return_X_y=True)
     >>> model = PrunedTreeClassifier(random_state=0).fit(X, y)
-    >>> model.get_n_leaves() < model.full_tree_.get_n_leaves()
+    >>> bool(model.get_n_leaves() < model.full_tree_.get_n_leaves())
     True
     """
 
     _tree_class = DecisionTreeClassifier
-    _risks = ("error", "impurity")
+    _risks = ("error", "impurity", "cost")
+    _family = "classification"
 
     def __init__(
         self,
@@ -228,6 +290,10 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
         prune_risk: str = "error",
         cv=10,
         rule="1se",
+        select_by: str = "error",
+        loss_matrix=None,
+        priors="data",
+        smoothing: str | None = None,
     ) -> None:
         self.criterion = criterion
         self.splitter = splitter
@@ -242,6 +308,10 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
         self.prune_risk = prune_risk
         self.cv = cv
         self.rule = rule
+        self.select_by = select_by
+        self.loss_matrix = loss_matrix
+        self.priors = priors
+        self.smoothing = smoothing
 
     def _growth_params(self) -> tuple[str, ...]:
         return (*_GROWTH, "class_weight")
@@ -266,8 +336,33 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
         self.n_classes_ = len(self.classes_)
         return self._fit(X, y, sample_weight)
 
+    def _uses_costs(self) -> bool:
+        return self.loss_matrix is not None or not (
+            isinstance(self.priors, str) and self.priors == "data"
+        )
+
+    def predict(self, X):
+        """Predict with the pruned tree.
+
+        Each leaf predicts its majority class, or under ``loss_matrix`` or
+        ``priors`` the class of least expected cost (``path_.node_class``), which
+        ``pruned_tree_.predict`` (a plain scikit-learn tree) does not know.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_samples,)
+        """
+        X = self._validated(X)
+        if not self._uses_costs():
+            return self.pruned_tree_.predict(X)
+        return self.classes_[self.path_.node_class[self._full_tree_nodes(X)]]
+
     def predict_proba(self, X):
-        """Class probabilities of the pruned tree's leaves.
+        """Class probabilities of the pruned tree's leaves (smoothed if asked).
 
         Parameters
         ----------
@@ -278,12 +373,15 @@ max_leaf_nodes, min_impurity_decrease, class_weight, random_state
         ndarray of shape (n_samples, n_classes)
         """
         X = self._validated(X)
-        return self.pruned_tree_.predict_proba(X)
+        if self.smoothing is None:
+            return self.pruned_tree_.predict_proba(X)
+        proba = leaf_probabilities(self.path_.node_counts, self.smoothing)
+        return proba[self._full_tree_nodes(X)]
 
     def predict_log_proba(self, X):
         """Logarithm of :meth:`predict_proba`."""
-        X = self._validated(X)
-        return self.pruned_tree_.predict_log_proba(X)
+        with np.errstate(divide="ignore"):
+            return np.log(self.predict_proba(X))
 
 
 class PrunedTreeRegressor(RegressorMixin, _PrunedTree):
@@ -304,7 +402,11 @@ max_leaf_nodes, min_impurity_decrease, random_state
     cv : int, splitter or iterable, default=10
         Folds for choosing alpha; an int means K-fold without shuffling.
     rule : str or SelectionRule, default="1se"
-        ``"min"`` or a k-SE rule such as ``"1se"`` or ``"0.5se"``.
+        ``"min"``, a k-SE rule such as ``"1se"`` or ``"0.5se"``, or a fixed
+        relative alpha such as ``"fixed0.01"`` (alpha = 0.01 R(root), no CV).
+    select_by : {"mse"}, default="mse"
+        The held-out loss of the CV curve (weighted by ``sample_weight`` when the
+        trees are grown with weights).
 
     Attributes
     ----------
@@ -324,6 +426,7 @@ max_leaf_nodes, min_impurity_decrease, random_state
 
     _tree_class = DecisionTreeRegressor
     _risks = ("squared_error", "impurity")
+    _family = "regression"
 
     def __init__(
         self,
@@ -340,6 +443,7 @@ max_leaf_nodes, min_impurity_decrease, random_state
         prune_risk: str = "squared_error",
         cv=10,
         rule="1se",
+        select_by: str = "mse",
     ) -> None:
         self.criterion = criterion
         self.splitter = splitter
@@ -353,6 +457,7 @@ max_leaf_nodes, min_impurity_decrease, random_state
         self.prune_risk = prune_risk
         self.cv = cv
         self.rule = rule
+        self.select_by = select_by
 
     def fit(self, X, y, sample_weight=None) -> PrunedTreeRegressor:
         """Grow the full tree, choose alpha by cross-validation, and prune.

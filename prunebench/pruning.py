@@ -36,6 +36,7 @@ from sklearn.tree import BaseDecisionTree
 from sklearn.tree._tree import Tree
 from sklearn.utils.validation import check_is_fitted
 
+from .costs import _is_data, check_costs, node_class_costs
 from .exceptions import parameter_error
 from .vocabulary import prune_risk_names
 
@@ -43,7 +44,9 @@ __all__ = [
     "PRUNE_RISKS",
     "PruningPath",
     "cart_candidates",
+    "check_costs",
     "merge_close",
+    "node_class_costs",
     "node_risks",
     "pruning_path",
 ]
@@ -67,6 +70,10 @@ def node_risks(
     X: np.ndarray | None = None,
     y: np.ndarray | None = None,
     sample_weight: np.ndarray | None = None,
+    *,
+    loss_matrix=None,
+    priors="data",
+    classes=None,
 ) -> np.ndarray:
     """Risk R(t) of every node of a fitted tree, as a share of the training weight.
 
@@ -74,15 +81,20 @@ def node_risks(
     ----------
     estimator : DecisionTreeClassifier or DecisionTreeRegressor
         A fitted single-output tree.
-    risk : {"error", "impurity", "squared_error"}
+    risk : {"error", "impurity", "squared_error", "cost"}
         ``"error"``: resubstitution misclassification of the node's majority class
-        (classification only). ``"impurity"``: the growing criterion's node impurity,
-        as scikit-learn's ``cost_complexity_pruning_path`` uses. ``"squared_error"``:
+        (classification only; with priors other than the data's, the 0-1 case of
+        ``"cost"``). ``"impurity"``: the growing criterion's node impurity, as
+        scikit-learn's ``cost_complexity_pruning_path`` uses. ``"squared_error"``:
         the node's sum of squared errors about its prediction over the total weight
-        (regression only).
+        (regression only). ``"cost"``: ``min_j sum_i L(i, j) pi_i N_i(t) / N_i``
+        under the loss matrix and priors (classification only; Breiman et al. 1984,
+        ch. 4), which is ``"error"`` for 0-1 loss and data priors.
     X, y, sample_weight : array-like, optional
         The training rows. Needed only for ``"squared_error"`` when the tree was not
         grown with a squared-error criterion, whose node impurity is that risk already.
+    loss_matrix, priors, classes
+        For ``"cost"`` (and ``"error"`` with priors): see :func:`node_class_costs`.
 
     Returns
     -------
@@ -93,7 +105,7 @@ def node_risks(
     if tree.n_outputs != 1:
         raise parameter_error("estimator", "pruning_path", "a single-output tree", estimator)
     classifier = is_classifier(estimator)
-    allowed = ("error", "impurity") if classifier else ("impurity", "squared_error")
+    allowed = ("error", "impurity", "cost") if classifier else ("impurity", "squared_error")
     if risk not in allowed:
         task = "classification" if classifier else "regression"
         raise parameter_error("risk", "pruning_path", f"one of {allowed} for {task}", risk)
@@ -103,6 +115,12 @@ def node_risks(
         risk == "squared_error" and estimator.criterion in ("squared_error", "friedman_mse")
     ):
         r = weight * tree.impurity / total
+    elif risk == "cost" or (risk == "error" and not _is_data(priors)):
+        # "error" under priors ignores the loss matrix: it is the 0-1 case
+        cost, _ = node_class_costs(
+            estimator, loss_matrix if risk == "cost" else None, priors, classes
+        )
+        r = cost.min(axis=1)
     elif risk == "error":
         class_weight = tree.value[:, 0, :] * weight[:, None]
         r = (weight - class_weight.max(axis=1)) / total
@@ -289,6 +307,19 @@ class PruningPath:
         Tree structure, for mapping full-tree leaves to subtree leaves.
     node_risk : ndarray of shape (node_count,)
         ``R(t)`` of every node.
+    node_class : ndarray of shape (node_count,) or None
+        Classifiers: the index (in ``estimator.classes_``) of the class every node
+        predicts as a leaf: the majority class, or under a loss matrix or priors
+        the class of least expected cost (:func:`node_class_costs`).
+    node_counts : ndarray of shape (node_count, n_classes) or None
+        Classifiers: the node's training class counts (weighted as the tree was grown).
+    loss_matrix : ndarray or None
+        The loss matrix the path and ``node_class`` used, in ``classes`` order.
+    priors : "data" or ndarray
+        The priors they used, in ``classes`` order.
+    classes : ndarray or None
+        The labels ``loss_matrix`` and ``priors`` are indexed by (a superset of the
+        tree's ``classes_``: a fold's tree may lack a rare class).
     """
 
     estimator: BaseDecisionTree
@@ -300,6 +331,11 @@ class PruningPath:
     parent: np.ndarray
     depth: np.ndarray
     node_risk: np.ndarray
+    node_class: np.ndarray | None = None
+    node_counts: np.ndarray | None = None
+    loss_matrix: np.ndarray | None = None
+    priors: str | np.ndarray = "data"
+    classes: np.ndarray | None = None
 
     @property
     def parent_alpha(self) -> np.ndarray:
@@ -356,6 +392,18 @@ class PruningPath:
         leaves = self.estimator.apply(X)
         return self.estimator.tree_.value[self.leaf_map(alpha)[leaves], 0, :]
 
+    def predict(self, X, alpha: float) -> np.ndarray:
+        """Predictions of the optimal subtree at ``alpha``, without rebuilding it.
+
+        For a classifier, each leaf predicts :attr:`node_class` (the cost-minimising
+        class under a loss matrix or priors; else the majority class, as the pruned
+        tree's own ``predict``); for a regressor, the leaf's value.
+        """
+        leaves = self.leaf_map(alpha)[self.estimator.apply(X)]
+        if self.node_class is None:
+            return self.estimator.tree_.value[leaves, 0, 0]
+        return np.asarray(self.estimator.classes_)[self.node_class[leaves]]
+
     def prune(self, alpha: float) -> BaseDecisionTree:
         """A copy of the full tree pruned to the optimal subtree at ``alpha``.
 
@@ -388,46 +436,11 @@ class PruningPath:
             Summed loss at each alpha: the number of misclassified rows for a
             classifier, the sum of squared errors for a regressor.
         """
-        est = self.estimator
-        tree = est.tree_
-        alphas = np.asarray(alphas, dtype=float)
-        if np.any(np.diff(alphas) < 0):
-            raise parameter_error("alphas", "PruningPath.losses", "sorted ascending", alphas)
-        leaf_of_row = est.apply(X)
-        leaves, row_leaf = np.unique(leaf_of_row, return_inverse=True)
-        if is_classifier(est):
-            class_index = {c: i for i, c in enumerate(est.classes_)}
-            k = len(class_index)
-            # labels never seen in training count as errors under every subtree
-            yi = np.fromiter((class_index.get(v, k) for v in np.asarray(y)), np.intp, len(y))
-            counts = np.bincount(row_leaf * (k + 1) + yi, minlength=leaves.size * (k + 1))
-            counts = counts.reshape(leaves.size, k + 1)
-            predicted = tree.value[:, 0, :].argmax(axis=1)
-            totals = counts.sum(axis=1)
-        else:
-            yv = np.asarray(y, dtype=float)
-            n = np.bincount(row_leaf, minlength=leaves.size).astype(float)
-            s1 = np.bincount(row_leaf, weights=yv, minlength=leaves.size)
-            s2 = np.bincount(row_leaf, weights=yv * yv, minlength=leaves.size)
-            value = tree.value[:, 0, 0]
-        node_alpha, parent_alpha = self.node_alpha, self.parent_alpha
-        diff = np.zeros(alphas.size + 1)
-        leaf_slot = np.arange(leaves.size)
-        node = leaves.copy()
-        while node.size:
-            lo = np.searchsorted(alphas, node_alpha[node], side="left")
-            hi = np.searchsorted(alphas, parent_alpha[node], side="left")
-            if is_classifier(est):
-                loss = totals[leaf_slot] - counts[leaf_slot, predicted[node]]
-            else:
-                v = value[node]
-                loss = s2[leaf_slot] - 2 * v * s1[leaf_slot] + v * v * n[leaf_slot]
-            live = lo < hi
-            diff += np.bincount(lo[live], weights=loss[live], minlength=alphas.size + 1)
-            diff -= np.bincount(hi[live], weights=loss[live], minlength=alphas.size + 1)
-            up = self.parent[node] >= 0
-            node, leaf_slot = self.parent[node[up]], leaf_slot[up]
-        return np.cumsum(diff)[: alphas.size]
+        from .scoring import candidate_losses, leaf_counts
+
+        held = leaf_counts(self.estimator, X, y)
+        name = "error" if is_classifier(self.estimator) else "mse"
+        return candidate_losses(self, held, alphas, name, totals=True)[name]
 
 
 def pruning_path(
@@ -436,6 +449,10 @@ def pruning_path(
     X: np.ndarray | None = None,
     y: np.ndarray | None = None,
     sample_weight: np.ndarray | None = None,
+    *,
+    loss_matrix=None,
+    priors="data",
+    classes=None,
 ) -> PruningPath:
     """Weakest-link pruning path of a fitted tree under a chosen pruning risk.
 
@@ -443,12 +460,21 @@ def pruning_path(
     ----------
     estimator : DecisionTreeClassifier or DecisionTreeRegressor
         A fitted single-output tree; it is read, never modified.
-    risk : {"error", "impurity", "squared_error"}, default="impurity"
+    risk : {"error", "impurity", "squared_error", "cost"}, default="impurity"
         The pruning risk R(t); see :func:`node_risks`. ``"impurity"`` reproduces
         scikit-learn's ``cost_complexity_pruning_path`` (with tied alphas merged).
     X, y, sample_weight : array-like, optional
         Training rows, needed only by ``"squared_error"`` on a tree grown with a
         criterion other than squared error.
+    loss_matrix : array-like of shape (n_classes, n_classes), optional
+        ``L[i, j]``, the cost of predicting ``j`` when the truth is ``i`` (rows true,
+        columns predicted), in ``classes`` order. Used by the ``"cost"`` risk and by
+        every leaf's predicted class (:attr:`PruningPath.node_class`), whatever the risk.
+    priors : "data", "equal" or array-like of shape (n_classes,), default="data"
+        Class priors, in ``classes`` order; used as the loss matrix is.
+    classes : array-like, optional
+        The labels ``loss_matrix`` and ``priors`` are indexed by; by default the
+        tree's ``classes_``.
 
     Returns
     -------
@@ -463,13 +489,35 @@ def pruning_path(
     >>> X, y = load_iris(return_X_y=True)
     >>> path = pruning_path(DecisionTreeClassifier(random_state=0).fit(X, y), "error")
     >>> [int(n) for n in path.n_leaves]
-    [7, 5, 3, 2, 1]
+    [9, 7, 4, 3, 2, 1]
     """
     check_is_fitted(estimator, "tree_")
     if risk not in PRUNE_RISKS:
         raise parameter_error("risk", "pruning_path", f"one of {PRUNE_RISKS}", risk)
-    r = node_risks(estimator, risk, X, y, sample_weight)
+    node_class = node_counts = None
     tree = estimator.tree_
+    if is_classifier(estimator):
+        classes = np.asarray(estimator.classes_ if classes is None else classes)
+        loss_matrix, priors = check_costs(classes, loss_matrix, priors)
+        node_counts = tree.value[:, 0, :] * tree.weighted_n_node_samples[:, None]
+        if loss_matrix is None and _is_data(priors):
+            node_class = tree.value[:, 0, :].argmax(axis=1)
+        else:
+            node_class = node_class_costs(estimator, loss_matrix, priors, classes)[1]
+    elif loss_matrix is not None or not _is_data(priors):
+        raise parameter_error(
+            "loss_matrix", "pruning_path", "None for a regressor (and priors 'data')", loss_matrix
+        )
+    r = node_risks(
+        estimator,
+        risk,
+        X,
+        y,
+        sample_weight,
+        loss_matrix=loss_matrix,
+        priors=priors,
+        classes=classes,
+    )
     left = tree.children_left.astype(np.intp)
     right = tree.children_right.astype(np.intp)
     depth, parent = _depths_and_parents(left, right)
@@ -508,6 +556,11 @@ def pruning_path(
         parent=parent,
         depth=depth,
         node_risk=r,
+        node_class=node_class,
+        node_counts=node_counts,
+        loss_matrix=loss_matrix,
+        priors=priors,
+        classes=classes,
     )
 
 

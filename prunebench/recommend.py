@@ -85,7 +85,7 @@ def config_frame(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     Parameters
     ----------
     folds : DataFrame
-        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`).
+        One row per trial, outer fold and arm (:func:`prunebench.results.load_folds`).
     family : {"classification", "regression"}
     metric : str
 
@@ -246,7 +246,7 @@ def recommend(
     Parameters
     ----------
     folds : DataFrame
-        One row per trial, outer fold and arm (:func:`prunebench.stats.load_folds`);
+        One row per trial, outer fold and arm (:func:`prunebench.results.load_folds`);
         ``root_feature`` and ``features_used`` columns, when present, give the
         stability of the chosen trees.
     metric : str, optional

@@ -64,7 +64,7 @@ CRITERIA: dict[str, tuple[str, ...]] = {
 }
 #: risks R(t) the weakest-link pruning can use, per family
 PRUNE_RISKS: dict[str, tuple[str, ...]] = {
-    CLASSIFICATION: ("error", "impurity"),
+    CLASSIFICATION: ("error", "impurity", "cost"),
     REGRESSION: ("squared_error", "impurity"),
 }
 

@@ -15,7 +15,7 @@ from scipy import stats as sps
 from prunebench import effects
 from prunebench.exceptions import InvalidParameterError
 from prunebench.execute import Progress, conduct
-from prunebench.stats import load_folds
+from prunebench.results import load_folds
 from prunebench.store import ResultStore
 from prunebench.study import parse_study
 

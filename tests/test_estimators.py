@@ -17,7 +17,14 @@ from prunebench.exceptions import InvalidParameterError
 
 @parametrize_with_checks(
     # cv=3: some checks fit on 10 to 20 rows, too few for the default 10 folds
-    [PrunedTreeClassifier(random_state=0, cv=3), PrunedTreeRegressor(random_state=0, cv=3)]
+    [
+        PrunedTreeClassifier(random_state=0, cv=3),
+        PrunedTreeRegressor(random_state=0, cv=3),
+        # priors other than "data" would override class_weight, which one check tests
+        PrunedTreeClassifier(random_state=0, cv=3, select_by="brier", smoothing="laplace"),
+        PrunedTreeClassifier(random_state=0, cv=3, select_by="auc", prune_risk="cost"),
+        PrunedTreeClassifier(random_state=0, rule="fixed0.2", prune_risk="cost"),
+    ]
 )
 def test_sklearn_estimator_checks(estimator, check):
     # scikit-learn's own conformance suite; the array-API check skips itself
@@ -100,6 +107,15 @@ def test_fitting_is_reproducible_with_a_seed():
         ({"cv": "ten"}, "cv"),
         ({"max_depth": 0}, "max_depth"),
         ({"min_samples_leaf": 0}, "min_samples_leaf"),
+        ({"rule": "fixed"}, "rule"),
+        ({"select_by": "mse"}, "select_by"),
+        ({"select_by": "average_precision"}, "select_by"),  # iris has three classes
+        ({"loss_matrix": np.ones((3, 3))}, "loss_matrix"),
+        ({"loss_matrix": [[0, 1], [1, 0]]}, "loss_matrix"),
+        ({"priors": [0.2, 0.8]}, "priors"),
+        ({"priors": "flat"}, "priors"),
+        ({"smoothing": "m0"}, "smoothing"),
+        ({"smoothing": "add-one"}, "smoothing"),
     ],
 )
 def test_bad_parameters_name_the_parameter(params, name):
@@ -109,6 +125,104 @@ def test_bad_parameters_name_the_parameter(params, name):
     message = str(err.value)
     assert message.startswith(f"The {name!r} parameter of PrunedTreeClassifier must be")
     assert "Got" in message and message.endswith("instead.")
+
+
+def test_regressor_refuses_classification_losses():
+    X, y = load_diabetes(return_X_y=True)
+    with pytest.raises(InvalidParameterError, match="'select_by' parameter of PrunedTreeRegressor"):
+        PrunedTreeRegressor(select_by="auc").fit(X, y)
+
+
+def test_loss_matrix_moves_predictions_to_the_costly_class():
+    # CART's loss matrix (Breiman et al. 1984, ch. 4): missing a positive costs 10, so
+    # the leaves predict the positive class whenever it carries over 1/11 of the cost
+    X, y = load_breast_cancer(return_X_y=True)
+    y = 1 - y  # malignant = 1, the rarer class
+    L = np.array([[0.0, 1.0], [10.0, 0.0]])
+    plain = PrunedTreeClassifier(random_state=0, rule="min").fit(X, y)
+    costly = PrunedTreeClassifier(
+        random_state=0, rule="min", prune_risk="cost", select_by="cost", loss_matrix=L
+    ).fit(X, y)
+    assert costly.path_.risk == "cost"
+    assert np.sum(costly.predict(X) == 1) > np.sum(plain.predict(X) == 1)
+    np.testing.assert_array_equal(costly.predict(X), costly.path_.predict(X, costly.ccp_alpha_))
+    # by hand: every leaf predicts positive iff 10 * (positives) > (negatives), as counts
+    leaves = costly.full_tree_.apply(X)
+    node = costly.path_.leaf_map(costly.ccp_alpha_)[leaves]
+    counts = costly.path_.node_counts[node]
+    np.testing.assert_array_equal(costly.predict(X), (10 * counts[:, 1] > counts[:, 0]).astype(int))
+    # the curve is the mean cost per row, the default prediction unchanged in plain
+    np.testing.assert_array_equal(plain.predict(X), plain.pruned_tree_.predict(X))
+
+
+def test_smoothing_is_opt_in_and_follows_laplace():
+    X, y = load_iris(return_X_y=True)
+    raw = PrunedTreeClassifier(random_state=0).fit(X, y)
+    np.testing.assert_array_equal(raw.predict_proba(X), raw.pruned_tree_.predict_proba(X))
+    smooth = clone(raw).set_params(smoothing="laplace").fit(X, y)
+    # Laplace (Provost & Domingos 2003): (n_c + 1) / (n + K) from the leaf's class counts
+    counts = smooth.path_.node_counts[
+        smooth.path_.leaf_map(smooth.ccp_alpha_)[smooth.full_tree_.apply(X)]
+    ]
+    np.testing.assert_allclose(
+        smooth.predict_proba(X), (counts + 1) / (counts.sum(axis=1, keepdims=True) + 3)
+    )
+    assert smooth.predict_proba(X).min() > 0
+    np.testing.assert_allclose(smooth.predict_log_proba(X), np.log(smooth.predict_proba(X)))
+
+
+def test_fixed_rule_needs_no_inner_cv():
+    X, y = load_breast_cancer(return_X_y=True)
+    model = PrunedTreeClassifier(random_state=0, rule="fixed0.02").fit(X, y)
+    assert model.selection_.n_fits == 1
+    # by hand: 0.02 times the root's misclassification rate (the minority share)
+    assert model.ccp_alpha_ == pytest.approx(0.02 * np.bincount(y).min() / y.size)
+    assert model.get_n_leaves() == model.path_.n_leaves[model.path_.subtree_index(model.ccp_alpha_)]
+
+
+def test_balanced_class_weight_chooses_by_balanced_error():
+    # scikit-learn as reference library: the curve of a tree grown with
+    # class_weight="balanced" is the mean over folds of 1 - balanced_accuracy_score
+    from sklearn.base import clone as sk_clone
+    from sklearn.metrics import balanced_accuracy_score
+
+    from prunebench.pruning import pruning_path
+
+    X, y = load_breast_cancer(return_X_y=True)
+    splitter = StratifiedKFold(4, shuffle=True, random_state=0)
+    model = PrunedTreeClassifier(class_weight="balanced", cv=splitter, random_state=0).fit(X, y)
+    tree = DecisionTreeClassifier(class_weight="balanced", random_state=0)
+    folds = []
+    for train, test in splitter.split(X, y):
+        path = pruning_path(sk_clone(tree).fit(X[train], y[train]), "error")
+        folds.append(
+            [
+                1 - balanced_accuracy_score(y[test], path.predict(X[test], a))
+                for a in model.cv_curve_["alpha"]
+            ]
+        )
+    np.testing.assert_allclose(model.cv_curve_["mean"], np.mean(folds, axis=0), atol=1e-12)
+
+
+def test_auc_curve_equals_grid_search():
+    # scikit-learn as reference library: GridSearchCV(scoring="roc_auc") over the same
+    # candidates and splitter, with the impurity risk that ccp_alpha prunes by
+    from sklearn.model_selection import GridSearchCV
+
+    X, y = load_breast_cancer(return_X_y=True)
+    splitter = StratifiedKFold(5, shuffle=True, random_state=3)
+    model = PrunedTreeClassifier(
+        prune_risk="impurity", select_by="auc", cv=splitter, random_state=0
+    ).fit(X, y)
+    grid = GridSearchCV(
+        DecisionTreeClassifier(random_state=0),
+        {"ccp_alpha": list(model.cv_curve_["alpha"])},
+        cv=splitter,
+        scoring="roc_auc",
+    ).fit(X, y)
+    np.testing.assert_allclose(
+        model.cv_curve_["mean"], 1 - grid.cv_results_["mean_test_score"], atol=1e-12
+    )
 
 
 def test_regressor_refuses_error_risk():

@@ -12,7 +12,7 @@ from scipy import stats as sps
 
 from prunebench import recommend
 from prunebench.exceptions import InvalidParameterError
-from prunebench.stats import load_folds
+from prunebench.results import load_folds
 from prunebench.store import ResultStore
 
 sm_meta = pytest.importorskip("statsmodels.stats.meta_analysis")

@@ -12,6 +12,7 @@ from scipy import stats as sps
 
 from prunebench import stats
 from prunebench.cli import main
+from prunebench.study import parse_study
 
 
 @pytest.fixture(scope="module")
@@ -96,7 +97,7 @@ def test_corrected_interval_coverage_is_two_sided_through_evaluate_group():
 
     from prunebench.datasets import LoadedDataset
     from prunebench.datasets._registry import fingerprint
-    from prunebench.evaluate import evaluate_group
+    from prunebench.evaluate import EvaluationSettings, evaluate_group
     from prunebench.selection import select_alpha
 
     rng = np.random.default_rng(0)
@@ -135,7 +136,7 @@ def test_corrected_interval_coverage_is_two_sided_through_evaluate_group():
     for r in range(samples):
         X, y = draw(100)
         data = LoadedDataset("coverage", "binary", X, y, {}, fingerprint(X, y), None)
-        rows = evaluate_group(group, data, r, 2, 5).folds
+        rows = evaluate_group(group, data, EvaluationSettings(seed=r, repeats=2, folds=5)).folds
         pruned = [row for row in rows if row["arm"] == "pruned"]
         unpruned = {(row["repeat"], row["fold"]): row for row in rows if row["arm"] == "unpruned"}
         d = [p["error"] - unpruned[(p["repeat"], p["fold"])]["error"] for p in pruned]
