@@ -397,10 +397,11 @@ def sql(database, query, as_json, as_csv) -> None:
     DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, ...) are refused.
     """
     from .results import run_query
+    from .text import query_text
 
     frame = run_query(database, query)
     if not _emit(frame, as_json, as_csv):
-        click.echo(frame.to_string(index=False, max_colwidth=40) if len(frame) else "(no rows)")
+        click.echo(query_text(frame))
 
 
 @main.command()

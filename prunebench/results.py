@@ -428,6 +428,10 @@ def _authorize(action, arg1, arg2, dbname, source):
         sqlite3.SQLITE_CREATE_TEMP_VIEW,
         sqlite3.SQLITE_TRANSACTION,
     }
+    if action == sqlite3.SQLITE_UPDATE and arg1 == "sqlite_master" and source is None:
+        # SQLite reports its own schema columns as "updated" when it sets up a table-valued
+        # pragma function (pragma_table_info(...)); the connection is read-only regardless
+        return sqlite3.SQLITE_OK
     if action in denied:
         return sqlite3.SQLITE_DENY
     if action == sqlite3.SQLITE_PRAGMA:
@@ -458,8 +462,6 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     statement = sql.strip().rstrip(";").strip()
     if not statement:
         raise QueryError("the query is empty")
-    if ";" in statement and sqlite3.complete_statement(statement.split(";", 1)[0] + ";"):
-        raise QueryError("give one statement at a time")
     match = _WRITES.match(statement)
     if match:
         raise QueryError(
@@ -480,19 +482,38 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     try:
         conn.set_authorizer(_authorize)
         try:
+            # SQLite itself refuses a second statement (a trailing comment is not one)
             cursor = conn.execute(statement)
+        except sqlite3.ProgrammingError as err:
+            if "one statement" in str(err):
+                raise QueryError("give one statement at a time") from None
+            raise QueryError(f"the query failed: {err}") from None
         except sqlite3.DatabaseError as err:
             message = str(err)
-            if "not authorized" in message or "readonly" in message:
+            if any(w in message for w in ("not authorized", "readonly", "may not be modified")):
                 raise QueryError(
                     "refused: the statement would change the results; "
                     "'prunebench sql' runs read-only queries"
                 ) from None
             raise QueryError(f"the query failed: {message}") from None
         columns = [c[0] for c in cursor.description or []]
-        return pd.DataFrame(cursor.fetchall(), columns=columns)
+        return _typed_frame(cursor.fetchall(), columns)
     finally:
         conn.close()
+
+
+def _typed_frame(rows: list[tuple], columns: list[str]) -> pd.DataFrame:
+    """Rows as a frame whose integer columns stay integers when some values are NULL."""
+    frame = pd.DataFrame(rows, columns=columns, dtype=object)
+    for i in range(len(columns)):
+        values = [v for v in frame.iloc[:, i] if v is not None]
+        if not values or any(isinstance(v, bool) for v in values):
+            continue
+        if all(isinstance(v, int) for v in values):
+            frame.isetitem(i, pd.array(list(frame.iloc[:, i]), dtype="Int64"))
+        elif all(isinstance(v, (int, float)) for v in values):
+            frame.isetitem(i, pd.to_numeric(frame.iloc[:, i]).astype(float))
+    return frame
 
 
 def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[Path]:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import io
 import json
@@ -43,6 +44,10 @@ def _digest(path):
         "  delete from curves;",
         "VACUUM",
         "SELECT 1; DELETE FROM folds",
+        "SELECT 1; -- note\nDELETE FROM folds",
+        "/* a comment first */ DELETE FROM folds",
+        "WITH x AS (SELECT 1) UPDATE sqlite_master SET sql = ''",
+        "SELECT * FROM pragma_table_info('trials'); DROP TABLE folds",
         "BEGIN",
     ],
 )
@@ -67,6 +72,45 @@ def test_sql_reads_with_json_and_csv(small_db):
     assert pragma.exit_code == 0 and "test_fingerprint" in pragma.output
     broken = CliRunner().invoke(main, ["sql", "--db", str(small_db), "SELECT nope FROM folds"])
     assert broken.exit_code == 2 and "no such column" in broken.output
+
+
+@pytest.mark.parametrize(
+    "query",
+    [
+        "SELECT name FROM pragma_table_info('trials')",
+        "SELECT name FROM pragma_table_info('trials'); -- note",
+    ],
+)
+def test_sql_runs_pragma_functions_and_queries_with_a_trailing_comment(query, small_db):
+    before = _digest(small_db)
+    result = CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--csv"])
+    assert result.exit_code == 0, result.output
+    # the reference: SQLite's own PRAGMA table_info, read with the standard library
+    conn = sqlite3.connect(small_db)
+    expected = [r[1] for r in conn.execute("PRAGMA table_info(trials)")]
+    conn.close()
+    assert result.output.splitlines() == ["name", *expected]
+    note = CliRunner().invoke(main, ["sql", "--db", str(small_db), "SELECT 1 AS one; -- note"])
+    assert note.exit_code == 0 and note.output.split() == ["one", "1"]
+    assert _digest(small_db) == before
+
+
+def test_sql_prints_integers_as_integers_and_null_as_blank(small_db):
+    # the fixture sweeps max_depth "none" (stored as NULL) and 3
+    query = "SELECT DISTINCT max_depth, inner_folds FROM trials ORDER BY max_depth, inner_folds"
+    run = functools.partial(CliRunner().invoke, main, ["sql", "--db", str(small_db), query])
+    as_csv = CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--csv"]).output
+    assert as_csv.splitlines() == ["max_depth,inner_folds", ",3", ",4", "3,3", "3,4"]
+    as_json = json.loads(
+        CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--json"]).output
+    )
+    assert as_json[0] == {"max_depth": None, "inner_folds": 3}
+    assert as_json[-1] == {"max_depth": 3, "inner_folds": 4}
+    table = run().output.splitlines()
+    assert [line.split() for line in table] == [
+        ["max_depth", "inner_folds"], ["3"], ["4"], ["3", "3"], ["3", "4"]
+    ]
+    assert "NaN" not in run().output and ".0" not in run().output
 
 
 def test_open_results_round_trips_what_the_store_wrote(small_db):
