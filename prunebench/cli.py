@@ -45,8 +45,14 @@ def _per_family(levels: dict) -> str:
     return f"{levels[CLASSIFICATION]} / {levels[REGRESSION]}"
 
 
+#: boolean keyword parameters -> the flags that set them (``overwrite=True`` is ``--overwrite``)
+SWITCHES = {"overwrite": "--overwrite"}
+
+
 def _as_flags(message: str) -> str:
     """A library message with its ``keyword=`` names written as this command line's flags."""
+    switches = r"\b(" + "|".join(SWITCHES) + r")=True\b"
+    message = re.sub(switches, lambda m: SWITCHES[m.group(1)], message)
     pattern = r"\b(" + "|".join(FLAGS) + r")=(?=\.\.\.|\S)"
     return re.sub(pattern, lambda m: FLAGS[m.group(1)] + " ", message)
 
@@ -420,12 +426,17 @@ def sql(database, query, as_json, as_csv) -> None:
     show_default=True,
     help="File format.",
 )
+@click.option("--overwrite", is_flag=True, help="Replace files of the same names in --out.")
 @_reports_errors
-def export(database, out, fmt) -> None:
-    """Write every table and view of a results database as CSV or Parquet files."""
+def export(database, out, fmt, overwrite) -> None:
+    """Write every table and view of a results database as CSV or Parquet files.
+
+    Each file is written whole or not at all; files already in --out are refused unless
+    --overwrite is given.
+    """
     from .results import export_tables
 
-    written = export_tables(database, out, fmt)
+    written = export_tables(database, out, fmt, overwrite=overwrite)
     click.echo(f"{len(written)} files written to {out}: " + ", ".join(p.name for p in written))
 
 

@@ -516,8 +516,13 @@ def _typed_frame(rows: list[tuple], columns: list[str]) -> pd.DataFrame:
     return frame
 
 
-def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[Path]:
+def export_tables(
+    path: str | Path, out: str | Path, fmt: str = "csv", *, overwrite: bool = False
+) -> list[Path]:
     """Write every table and view of a results database as CSV or Parquet files.
+
+    Each file is written under a temporary name and renamed when whole, so a file is
+    either complete or absent.  Existing files are not replaced unless asked.
 
     Parameters
     ----------
@@ -526,6 +531,9 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
     out : str or Path
         Folder for the files (created if missing).
     fmt : {"csv", "parquet"}
+    overwrite : bool, default=False
+        Replace files of the same names already in ``out``; without it they are refused
+        before anything is written.
 
     Returns
     -------
@@ -535,20 +543,33 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
         raise parameter_error("fmt", "export_tables", "'csv' or 'parquet'", fmt)
     results = open_results(path)
     out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
+    targets = [out / f"{name}.{fmt}" for name in TABLES + VIEWS]
+    present = [t.name for t in targets if t.exists()]
+    if present and not overwrite:
+        raise QueryError(
+            f"out={out} already holds {', '.join(present)}; give overwrite=True to replace "
+            f"{'it' if len(present) == 1 else 'them'}, or another folder"
+        )
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise QueryError(f"out={out}: cannot create the folder ({err.strerror})") from None
     written = []
-    for name in TABLES + VIEWS:
+    for name, target in zip(TABLES + VIEWS, targets, strict=True):
         frame = results.table(name)
-        target = out / f"{name}.{fmt}"
         partial = target.with_name(target.name + ".partial")
-        if fmt == "csv":
-            frame.to_csv(partial, index=False)
-        else:
-            try:
+        try:
+            if fmt == "csv":
+                frame.to_csv(partial, index=False)
+            else:
                 frame.to_parquet(partial, index=False)
-            except ImportError:
-                raise QueryError("Parquet export needs pyarrow: pip install pyarrow") from None
-        partial.replace(target)
+            partial.replace(target)
+        except ImportError:
+            partial.unlink(missing_ok=True)
+            raise QueryError("Parquet export needs pyarrow: pip install pyarrow") from None
+        except OSError as err:
+            partial.unlink(missing_ok=True)
+            raise QueryError(f"out={out}: cannot write {target.name} ({err.strerror})") from None
         written.append(target)
     return written
 

@@ -10,6 +10,7 @@ import sqlite3
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -153,6 +154,41 @@ def test_export_writes_every_table(small_db, tmp_path):
     )
     folds = pd.read_parquet(tmp_path / "pq" / "folds.parquet")
     assert len(folds) == 48 * 6 * 2
+
+
+def test_export_refuses_to_replace_files_unless_overwrite(small_db, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "trials.csv").write_text("mine\n")
+    args = ["export", "--db", str(small_db), "--out", str(out)]
+    refused = CliRunner().invoke(main, args)
+    assert refused.exit_code == 2
+    assert refused.output.startswith("error: ") and refused.output.count("\n") == 1
+    assert "trials.csv" in refused.output and "--overwrite" in refused.output
+    # nothing written: the file kept, no other table exported
+    assert sorted(p.name for p in out.iterdir()) == ["trials.csv"]
+    assert (out / "trials.csv").read_text() == "mine\n"
+    replaced = CliRunner().invoke(main, [*args, "--overwrite"])
+    assert replaced.exit_code == 0, replaced.output
+    assert len(pd.read_csv(out / "trials.csv")) == len(open_results(small_db).trials())
+
+
+def test_export_writes_each_file_whole_or_not_at_all(small_db, tmp_path, monkeypatch):
+    real = pd.DataFrame.to_csv
+
+    def fails_on_folds(frame, target, *args, **kwargs):
+        if "test_fingerprint" in frame.columns:  # the folds table
+            Path(target).write_text("half a fi")
+            raise OSError(28, "No space left on device")
+        return real(frame, target, *args, **kwargs)
+
+    monkeypatch.setattr(pd.DataFrame, "to_csv", fails_on_folds)
+    result = CliRunner().invoke(main, ["export", "--db", str(small_db), "--out", str(tmp_path)])
+    assert result.exit_code == 2
+    assert result.output.count("\n") == 1 and "folds.csv" in result.output
+    assert "No space left" in result.output
+    names = {p.name for p in tmp_path.iterdir()}
+    assert "folds.csv" not in names and not any(n.endswith(".partial") for n in names)
 
 
 STUDY = """\
