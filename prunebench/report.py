@@ -272,6 +272,8 @@ def write_report(database: str | Path, out: str | Path, study: str | None = None
 
     def unwritable(err: OSError) -> InvalidParameterError:
         reason = err.strerror or type(err).__name__
+        if isinstance(err, (FileExistsError, NotADirectoryError)):
+            reason = "a file stands where a folder must be"
         where = f": {err.filename}" if err.filename else ""
         expected = f"a file in a folder that can be written ({reason}{where})"
         return parameter_error("out", "write_report", expected, str(out))
