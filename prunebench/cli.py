@@ -172,11 +172,29 @@ def demo(dataset, criterion, prune_risk, cv, rule, random_state) -> None:
     from .text import demo_text
 
     data = load_dataset(dataset)
+    _check_demo(dataset, data, criterion, cv)
     given = {"criterion": criterion, "prune_risk": prune_risk}
     params = {"cv": cv, "rule": rule, "random_state": random_state}
     params.update({k: v for k, v in given.items() if v})
     model = estimator_for(data.task)(**params).fit(data.X, data.y)
     click.echo(demo_text(dataset, data, model, cv))
+
+
+def _check_demo(dataset: str, data, criterion: str | None, cv: int) -> None:
+    """The criterion suits the data set's task, and every CV fold can get rows."""
+    from .exceptions import parameter_error
+    from .vocabulary import CRITERIA, family_of
+
+    family = family_of(data.task)
+    if criterion is not None and criterion not in CRITERIA[family]:
+        expected = f"a {family} criterion for {dataset!r}: {', '.join(CRITERIA[family])}"
+        raise parameter_error("--criterion", "prunebench demo", expected, criterion)
+    # stratified folds for classification need as many rows of each class as folds
+    most = data.smallest_class if family == CLASSIFICATION else len(data.y)
+    if isinstance(cv, int) and cv > most:
+        where = "rows in the smallest class" if family == CLASSIFICATION else "rows"
+        expected = f"at most {most}, the number of {where} of {dataset!r}"
+        raise parameter_error("--cv", "prunebench demo", expected, cv)
 
 
 @main.command()

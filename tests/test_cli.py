@@ -50,6 +50,24 @@ def test_demo_bad_rule_is_one_line_and_exit_2():
     assert "'rule'" in result.output
 
 
+@pytest.mark.parametrize(
+    "args, named, bound",
+    [
+        # breast_cancer: 212 malignant of 569 rows; diabetes: 442 rows (scikit-learn's dataset docs, from memory)
+        (["--cv", "1000"], "'--cv'", "at most 212"),
+        (["--dataset", "diabetes", "--cv", "443"], "'--cv'", "at most 442"),
+        (["--dataset", "iris", "--criterion", "squared_error"], "'--criterion'", "gini, entropy"),
+        (["--criterion", "bogus"], "'--criterion'", "gini, entropy"),
+        (["--dataset", "diabetes", "--criterion", "gini"], "'--criterion'", "squared_error"),
+    ],
+)
+def test_demo_bad_folds_or_criterion_is_one_line_and_exit_2(args, named, bound):
+    result = CliRunner().invoke(main, ["demo", *args])
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert named in result.output and bound in result.output
+
+
 def test_datasets_lists_every_kind_as_json():
     import json
 
