@@ -96,6 +96,14 @@ _csv_option = click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 _study_file_argument = click.argument("study_file", type=click.Path(dir_okay=False))
 
 
+def _significance(alpha: float, command: str) -> None:
+    """A significance level lies in (0, 0.5]: above it a test would reject more often than not."""
+    from .exceptions import parameter_error
+
+    if not 0 < alpha <= 0.5:
+        raise parameter_error("--alpha", f"prunebench {command}", "in (0, 0.5]", alpha)
+
+
 def _results_options(command):
     """``--db`` and ``--study``: the options of every command over a results database."""
     return _db_option(_study_option(command))
@@ -339,6 +347,7 @@ def rank(database, study, metric, alpha, as_json, as_csv) -> None:
     from .ranks import ROPE, ranking, ranking_frame
     from .text import rank_text
 
+    _significance(alpha, "rank")
     results = ranking(_fold_rows(database, study), metric, alpha)
     if as_json or as_csv:
         _emit(ranking_frame(results), as_json, as_csv)
@@ -365,6 +374,7 @@ def recommend(database, study, alpha, as_json) -> None:
     from .snippets import recommendation_records
     from .text import recommend_text
 
+    _significance(alpha, "recommend")
     recs = recommendation(_fold_rows(database, study), alpha)
     if as_json:
         click.echo(json.dumps(recommendation_records(recs), indent=2, default=str))
@@ -474,9 +484,12 @@ def progress(database, study, watch) -> None:
     """
     import time
 
+    from .exceptions import parameter_error
     from .results import progress_report
     from .text import progress_text
 
+    if not watch >= 0:  # also refuses nan
+        raise parameter_error("--watch", "prunebench progress", "0 (once) or seconds > 0", watch)
     while True:
         r = progress_report(database, study)
         click.echo(progress_text(r))

@@ -53,7 +53,8 @@ def test_demo_bad_rule_is_one_line_and_exit_2():
 @pytest.mark.parametrize(
     "args, named, bound",
     [
-        # breast_cancer: 212 malignant of 569 rows; diabetes: 442 rows (scikit-learn's dataset docs, from memory)
+        # breast_cancer: 212 malignant of 569 rows; diabetes: 442 rows
+        # (scikit-learn's dataset descriptions, from memory)
         (["--cv", "1000"], "'--cv'", "at most 212"),
         (["--dataset", "diabetes", "--cv", "443"], "'--cv'", "at most 442"),
         (["--dataset", "iris", "--criterion", "squared_error"], "'--criterion'", "gini, entropy"),
@@ -66,6 +67,31 @@ def test_demo_bad_folds_or_criterion_is_one_line_and_exit_2(args, named, bound):
     assert result.exit_code == 2, result.output
     assert result.output.startswith("error: ") and result.output.count("\n") == 1
     assert named in result.output and bound in result.output
+
+
+@pytest.mark.parametrize(
+    "args, named",
+    [
+        (["rank", "--alpha", "2"], "'--alpha'"),
+        (["rank", "--alpha", "0"], "'--alpha'"),
+        (["rank", "--alpha", "0.6"], "'--alpha'"),
+        (["recommend", "--alpha", "-1"], "'--alpha'"),
+        (["recommend", "--alpha", "nan"], "'--alpha'"),
+        (["progress", "--watch", "-1"], "'--watch'"),
+        (["progress", "--watch", "nan"], "'--watch'"),
+    ],
+)
+def test_significance_levels_and_watch_intervals_are_bounded(args, named, small_db):
+    result = CliRunner().invoke(main, [*args, "--db", str(small_db)])
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert named in result.output and "nan ranks" not in result.output
+
+
+def test_the_largest_significance_level_is_accepted(small_db):
+    result = CliRunner().invoke(main, ["rank", "--alpha", "0.5", "--db", str(small_db)])
+    assert result.exit_code == 0, result.output
+    assert "critical difference at 0.5 = " in result.output and "nan" not in result.output
 
 
 def test_datasets_lists_every_kind_as_json():
