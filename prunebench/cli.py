@@ -73,12 +73,13 @@ def _reports_errors(command):
 
 # ---- options shared by several commands, declared once -----------------------------------
 
+_DB_HELP = "The results database, or the study file that names it."
 _db_option = click.option(
     "--db",
     "database",
     required=True,
     type=click.Path(dir_okay=False),
-    help="The results database.",
+    help=_DB_HELP,
 )
 _study_option = click.option(
     "--study", default=None, help="Study name, when the database holds several."
@@ -104,9 +105,42 @@ def _significance(alpha: float, command: str) -> None:
         raise parameter_error("--alpha", f"prunebench {command}", "in (0, 0.5]", alpha)
 
 
+def _reads_database(command):
+    """Read the database a study file names when ``--db`` (or the argument) is a study file."""
+
+    @functools.wraps(command)
+    @_reports_errors
+    def run(*args, database=None, source=None, **kwargs):
+        from .exceptions import QueryError
+        from .results import results_path
+
+        given = {results_path(p) for p in (database, source) if p is not None}
+        if len(given) > 1:
+            raise QueryError(f"give one results database, not {source} and database={database}")
+        if not given:
+            name = click.get_current_context().info_name
+            raise QueryError(
+                f"name the results database or its study file: prunebench {name} FILE, "
+                "or database=FILE"
+            )
+        return command(*args, database=given.pop(), **kwargs)
+
+    return run
+
+
 def _results_options(command):
-    """``--db`` and ``--study``: the options of every command over a results database."""
-    return _db_option(_study_option(command))
+    """``[DB_OR_STUDY]``, ``--db`` and ``--study``: the options of every command over results."""
+    argument = click.argument(
+        "source", required=False, metavar="[DB_OR_STUDY]", type=click.Path(dir_okay=False)
+    )
+    db = click.option(
+        "--db",
+        "database",
+        default=None,
+        type=click.Path(dir_okay=False),
+        help=_DB_HELP + " Also accepted as the first argument.",
+    )
+    return argument(db(_study_option(_reads_database(command))))
 
 
 def _output_options(command):
@@ -422,6 +456,7 @@ def report(database, study, out) -> None:
 @main.command()
 @_db_option
 @click.argument("query")
+@_reads_database
 @_output_options
 @_reports_errors
 def sql(database, query, as_json, as_csv) -> None:
@@ -455,6 +490,7 @@ def sql(database, query, as_json, as_csv) -> None:
     help="File format.",
 )
 @click.option("--overwrite", is_flag=True, help="Replace files of the same names in --out.")
+@_reads_database
 @_reports_errors
 def export(database, out, fmt, overwrite) -> None:
     """Write every table and view of a results database as CSV or Parquet files.

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .exceptions import QueryError, parameter_error
+from .exceptions import QueryError, StoreError, parameter_error
 from .store import ResultStore, connect_readonly
 from .vocabulary import (
     CLASSIFICATION,
@@ -44,6 +44,7 @@ __all__ = [
     "progress_report",
     "pruned_losses",
     "resolve_study",
+    "results_path",
     "run_query",
     "study_overview",
     "trial_curves",
@@ -53,7 +54,57 @@ TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
 VIEWS = ("arm_summary", "fold_differences")
 
 
-# ---- which study -----------------------------------------------------------------------
+# ---- which file, which study -------------------------------------------------------------
+
+_SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def results_path(path: str | Path) -> Path:
+    """The results database to read for ``path``: the database itself, or a study file's.
+
+    A study file names its database (its ``database`` key, else ``<stem>.sqlite`` beside
+    it), so a reader may be given either.  Any other file that is not SQLite is refused
+    here as not a results database, rather than reported as damaged by SQLite.
+
+    Parameters
+    ----------
+    path : str or Path
+        A results database or a study file; a missing path is returned as it is (the
+        store says it is missing).
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    StoreError
+        The file is neither SQLite nor a study file, or is a study file whose database
+        does not exist yet (the message names it).
+    """
+    path = Path(path)
+    try:
+        with open(path, "rb") as f:
+            head = f.read(len(_SQLITE_HEADER))
+    except OSError:
+        return path
+    if not head or head == _SQLITE_HEADER:
+        return path
+    from .study import study_database
+
+    database = study_database(path)
+    if database is None:
+        raise StoreError(
+            f"database={path}: not a results database (neither an SQLite file nor a study file)"
+        )
+    if not database.exists():
+        raise StoreError(
+            f"database={path} is a study file, not a results database; the database it "
+            f"names, {database}, does not exist (conduct the study first, or give the "
+            "database it was conducted into)"
+        )
+    return database
+
 
 
 def resolve_study(store: ResultStore, study: str | None = None) -> dict:

@@ -62,6 +62,7 @@ __all__ = [
     "TrialGroup",
     "load_study",
     "parse_study",
+    "study_database",
 ]
 
 CLASSIFICATION_CRITERIA = CRITERIA[CLASSIFICATION]
@@ -632,6 +633,33 @@ def _check_fits(
         f"levels, or allow it with max_tree_fits = {fits} at the top of the study file",
         line_key="outer.repeats",
     )
+
+
+def study_database(path: str | Path) -> Path | None:
+    """The results database a study file writes to, read without loading its data sets.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Path or None
+        Its ``database`` (relative to the study file), else ``<stem>.sqlite`` beside it,
+        as ``prunebench conduct`` uses without ``--db``; None when the file is not a study
+        file (not TOML text, or without the keys every study has).
+    """
+    path = Path(path)
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        return None
+    if not {"name", "seed", "datasets"} <= set(doc):
+        return None
+    database = doc.get("database")
+    if isinstance(database, str) and database.strip():
+        return Path(os.path.normpath(path.parent / database))
+    return path.with_suffix(".sqlite")
 
 
 def load_study(path: str | Path) -> Study:

@@ -191,6 +191,96 @@ def test_export_writes_each_file_whole_or_not_at_all(small_db, tmp_path, monkeyp
     assert "folds.csv" not in names and not any(n.endswith(".partial") for n in names)
 
 
+TINY = """\
+name = "tiny"
+seed = 4
+database = "results/tiny.sqlite"
+datasets = ["iris", "wine"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+max_depth = ["none", 2]
+inner_folds = [3]
+"""
+
+
+@pytest.fixture(scope="module")
+def tiny_study(tmp_path_factory):
+    """A conducted study file whose ``database`` key puts the results in a subfolder."""
+    folder = tmp_path_factory.mktemp("tiny")
+    study = folder / "tiny.toml"
+    study.write_text(TINY)
+    result = CliRunner().invoke(main, ["conduct", str(study)])
+    assert result.exit_code == 0, result.output
+    return study, folder / "results" / "tiny.sqlite"
+
+
+@pytest.mark.parametrize(
+    "command",
+    [
+        ["compare"],
+        ["compare", "--csv"],
+        ["rank", "--json"],
+        ["progress"],
+        ["sql", "SELECT COUNT(*) AS n FROM trials"],
+    ],
+)
+def test_read_commands_accept_the_study_file_for_its_database(command, tiny_study):
+    study, db = tiny_study
+    name, *rest = command
+    reference = CliRunner().invoke(main, [name, "--db", str(db), *rest])
+    assert reference.exit_code == 0, reference.output
+    ways = [[name, "--db", str(study), *rest]]
+    if name != "sql":  # sql's argument is the query
+        ways += [[name, str(study), *rest], [name, str(db), *rest]]
+    for args in ways:
+        result = CliRunner().invoke(main, args)
+        assert result.exit_code == 0, (args, result.output)
+        if name != "progress":  # its rate line depends on the time
+            assert result.output == reference.output, args
+
+
+def test_export_accepts_the_study_file_for_its_database(tiny_study, tmp_path):
+    study, db = tiny_study
+    result = CliRunner().invoke(main, ["export", "--db", str(study), "--out", str(tmp_path)])
+    assert result.exit_code == 0, result.output
+    assert len(pd.read_csv(tmp_path / "trials.csv")) == len(open_results(db).trials()) == 4
+
+
+def test_a_file_that_is_no_results_database_is_named_so(tmp_path):
+    study = tmp_path / "fresh.toml"
+    study.write_text(TINY.replace('database = "results/tiny.sqlite"\n', ""))
+    notes = tmp_path / "notes.csv"
+    notes.write_text("a,b\n1,2\n")
+    for args, says in [
+        (["compare", "--db", str(study)], f"the database it names, {tmp_path / 'fresh.sqlite'}"),
+        (["rank", str(study)], "is a study file, not a results database"),
+        (["sql", "--db", str(notes), "SELECT 1"], "not a results database"),
+        (["recommend", "--db", str(notes)], "neither an SQLite file nor a study file"),
+    ]:
+        result = CliRunner().invoke(main, args)
+        assert result.exit_code != 0
+        assert result.output.startswith("error: ") and result.output.count("\n") == 1
+        assert says in result.output, result.output
+        assert "damaged" not in result.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["fresh.toml", "notes.csv"]
+
+
+def test_results_path_of_a_study_file_is_where_conduct_writes(tmp_path):
+    from prunebench.execute import default_database
+    from prunebench.study import load_study
+
+    for text in (TINY, TINY.replace('database = "results/tiny.sqlite"\n', "")):
+        study = tmp_path / "s.toml"
+        study.write_text(text)
+        expected = default_database(load_study(study))
+        expected.parent.mkdir(exist_ok=True)
+        sqlite3.connect(expected).close()  # an empty SQLite file is enough to be found
+        assert results.results_path(study) == expected
+        assert results.results_path(expected) == expected
+
+
 STUDY = """\
 name = "watched"
 seed = 2
