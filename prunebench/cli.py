@@ -26,6 +26,7 @@ from .vocabulary import (
     FACTORS,
     PRUNE_RISKS,
     REGRESSION,
+    counted,
     metric_names,
 )
 
@@ -433,7 +434,7 @@ def figures(database, study, out) -> None:
 
     with ResultStore(database, readonly=True) as store:
         written = write_figures(store, load_folds(store, study), out)
-    click.echo(f"{len(written)} files written to {out}")
+    click.echo(f"{counted(len(written), 'file')} written to {out}")
 
 
 @main.command()
@@ -501,7 +502,8 @@ def export(database, out, fmt, overwrite) -> None:
     from .results import export_tables
 
     written = export_tables(database, out, fmt, overwrite=overwrite)
-    click.echo(f"{len(written)} files written to {out}: " + ", ".join(p.name for p in written))
+    names = ", ".join(p.name for p in written)
+    click.echo(f"{counted(len(written), 'file')} written to {out}: {names}")
 
 
 @main.command()

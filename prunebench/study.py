@@ -48,7 +48,7 @@ from .datasets import (
 from .exceptions import StudyError
 from .selection import parse_rule
 from .trials import FACTORS, SearchSpec, Study, Trial, TrialGroup
-from .vocabulary import CLASSIFICATION, CRITERIA, FAMILIES, REGRESSION, family_of
+from .vocabulary import CLASSIFICATION, CRITERIA, FAMILIES, REGRESSION, counted, family_of
 from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
@@ -539,7 +539,7 @@ def _check_folds(
             where += f" (column {data.info.target!r} of {data.info.file})"
         raise check.fail(
             "outer.folds",
-            f"{folds} folds is more than the {data.smallest_class} rows of class "
+            f"{folds} folds is more than the {counted(data.smallest_class, 'row')} of class "
             f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
         )
     # the inner CV runs on the outer-training part: about (folds-1)/folds of it
@@ -553,8 +553,8 @@ def _check_folds(
     if too_many:
         raise check.fail(
             inner_key,
-            f"{too_many[0]} inner folds is more than the about {inner_rows} "
-            f"rows of the smallest class of dataset {key!r} in an outer-training part",
+            f"{too_many[0]} inner folds is more than the about {counted(inner_rows, 'row')} "
+            f"of the smallest class of dataset {key!r} in an outer-training part",
         )
 
 
@@ -590,7 +590,7 @@ def _check_leaves(
         leaf_key = "factors.min_samples_leaf"
     raise check.fail(
         leaf_key,
-        f"a leaf of {largest} rows is more than the {rows} rows of the smallest "
+        f"a leaf of {largest} rows is more than the {counted(rows, 'row')} of the smallest "
         f"outer-training part of dataset {key!r} ({n} rows, {folds} folds)",
     )
 
