@@ -35,6 +35,21 @@ def test_every_command_is_in_the_readme(name):
     assert f"prunebench {name}" in readme
 
 
+@pytest.mark.parametrize(
+    "name", ["compare", "rank", "recommend", "figures", "report", "progress", "sql", "export"]
+)
+def test_read_commands_say_they_take_the_study_file(name):
+    result = CliRunner().invoke(main, [name, "--help"])
+    assert "or the study file that names it" in " ".join(result.output.split())
+    if name not in ("sql", "export"):
+        assert "[DB_OR_STUDY]" in result.output
+
+
+def test_export_help_names_overwrite():
+    result = CliRunner().invoke(main, ["export", "--help"])
+    assert "--overwrite" in result.output and "whole or not at all" in result.output
+
+
 def test_demo_prints_curve_and_chosen_alpha():
     result = CliRunner().invoke(main, ["demo", "--dataset", "iris", "--cv", "5", "--rule", "min"])
     assert result.exit_code == 0, result.output
