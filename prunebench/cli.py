@@ -26,6 +26,7 @@ from .vocabulary import (
     FACTORS,
     PRUNE_RISKS,
     REGRESSION,
+    counted,
     metric_names,
 )
 
@@ -45,8 +46,14 @@ def _per_family(levels: dict) -> str:
     return f"{levels[CLASSIFICATION]} / {levels[REGRESSION]}"
 
 
+#: boolean keyword parameters -> the flags that set them (``overwrite=True`` is ``--overwrite``)
+SWITCHES = {"overwrite": "--overwrite"}
+
+
 def _as_flags(message: str) -> str:
     """A library message with its ``keyword=`` names written as this command line's flags."""
+    switches = r"\b(" + "|".join(SWITCHES) + r")=True\b"
+    message = re.sub(switches, lambda m: SWITCHES[m.group(1)], message)
     pattern = r"\b(" + "|".join(FLAGS) + r")=(?=\.\.\.|\S)"
     return re.sub(pattern, lambda m: FLAGS[m.group(1)] + " ", message)
 
@@ -67,12 +74,13 @@ def _reports_errors(command):
 
 # ---- options shared by several commands, declared once -----------------------------------
 
+_DB_HELP = "The results database, or the study file that names it."
 _db_option = click.option(
     "--db",
     "database",
     required=True,
     type=click.Path(dir_okay=False),
-    help="The results database.",
+    help=_DB_HELP,
 )
 _study_option = click.option(
     "--study", default=None, help="Study name, when the database holds several."
@@ -90,9 +98,50 @@ _csv_option = click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 _study_file_argument = click.argument("study_file", type=click.Path(dir_okay=False))
 
 
+def _significance(alpha: float, command: str) -> None:
+    """A significance level lies in (0, 0.5]: above it a test would reject more often than not."""
+    from .exceptions import parameter_error
+
+    if not 0 < alpha <= 0.5:
+        raise parameter_error("--alpha", f"prunebench {command}", "in (0, 0.5]", alpha)
+
+
+def _reads_database(command):
+    """Read the database a study file names when ``--db`` (or the argument) is a study file."""
+
+    @functools.wraps(command)
+    @_reports_errors
+    def run(*args, database=None, source=None, **kwargs):
+        from .exceptions import QueryError
+        from .results import results_path
+
+        given = {results_path(p) for p in (database, source) if p is not None}
+        if len(given) > 1:
+            raise QueryError(f"give one results database, not {source} and database={database}")
+        if not given:
+            name = click.get_current_context().info_name
+            raise QueryError(
+                f"name the results database or its study file: prunebench {name} FILE, "
+                "or database=FILE"
+            )
+        return command(*args, database=given.pop(), **kwargs)
+
+    return run
+
+
 def _results_options(command):
-    """``--db`` and ``--study``: the options of every command over a results database."""
-    return _db_option(_study_option(command))
+    """``[DB_OR_STUDY]``, ``--db`` and ``--study``: the options of every command over results."""
+    argument = click.argument(
+        "source", required=False, metavar="[DB_OR_STUDY]", type=click.Path(dir_okay=False)
+    )
+    db = click.option(
+        "--db",
+        "database",
+        default=None,
+        type=click.Path(dir_okay=False),
+        help=_DB_HELP + " Also accepted as the first argument.",
+    )
+    return argument(db(_study_option(_reads_database(command))))
 
 
 def _output_options(command):
@@ -166,11 +215,29 @@ def demo(dataset, criterion, prune_risk, cv, rule, random_state) -> None:
     from .text import demo_text
 
     data = load_dataset(dataset)
+    _check_demo(dataset, data, criterion, cv)
     given = {"criterion": criterion, "prune_risk": prune_risk}
     params = {"cv": cv, "rule": rule, "random_state": random_state}
     params.update({k: v for k, v in given.items() if v})
     model = estimator_for(data.task)(**params).fit(data.X, data.y)
     click.echo(demo_text(dataset, data, model, cv))
+
+
+def _check_demo(dataset: str, data, criterion: str | None, cv: int) -> None:
+    """The criterion suits the data set's task, and every CV fold can get rows."""
+    from .exceptions import parameter_error
+    from .vocabulary import CRITERIA, family_of
+
+    family = family_of(data.task)
+    if criterion is not None and criterion not in CRITERIA[family]:
+        expected = f"a {family} criterion for {dataset!r}: {', '.join(CRITERIA[family])}"
+        raise parameter_error("--criterion", "prunebench demo", expected, criterion)
+    # stratified folds for classification need as many rows of each class as folds
+    most = data.smallest_class if family == CLASSIFICATION else len(data.y)
+    if isinstance(cv, int) and cv > most:
+        where = "rows in the smallest class" if family == CLASSIFICATION else "rows"
+        expected = f"at most {most}, the number of {where} of {dataset!r}"
+        raise parameter_error("--cv", "prunebench demo", expected, cv)
 
 
 @main.command()
@@ -315,6 +382,7 @@ def rank(database, study, metric, alpha, as_json, as_csv) -> None:
     from .ranks import ROPE, ranking, ranking_frame
     from .text import rank_text
 
+    _significance(alpha, "rank")
     results = ranking(_fold_rows(database, study), metric, alpha)
     if as_json or as_csv:
         _emit(ranking_frame(results), as_json, as_csv)
@@ -341,6 +409,7 @@ def recommend(database, study, alpha, as_json) -> None:
     from .snippets import recommendation_records
     from .text import recommend_text
 
+    _significance(alpha, "recommend")
     recs = recommendation(_fold_rows(database, study), alpha)
     if as_json:
         click.echo(json.dumps(recommendation_records(recs), indent=2, default=str))
@@ -365,7 +434,7 @@ def figures(database, study, out) -> None:
 
     with ResultStore(database, readonly=True) as store:
         written = write_figures(store, load_folds(store, study), out)
-    click.echo(f"{len(written)} files written to {out}")
+    click.echo(f"{counted(len(written), 'file')} written to {out}")
 
 
 @main.command()
@@ -388,6 +457,7 @@ def report(database, study, out) -> None:
 @main.command()
 @_db_option
 @click.argument("query")
+@_reads_database
 @_output_options
 @_reports_errors
 def sql(database, query, as_json, as_csv) -> None:
@@ -397,10 +467,11 @@ def sql(database, query, as_json, as_csv) -> None:
     DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, ...) are refused.
     """
     from .results import run_query
+    from .text import query_text
 
     frame = run_query(database, query)
     if not _emit(frame, as_json, as_csv):
-        click.echo(frame.to_string(index=False, max_colwidth=40) if len(frame) else "(no rows)")
+        click.echo(query_text(frame))
 
 
 @main.command()
@@ -419,13 +490,20 @@ def sql(database, query, as_json, as_csv) -> None:
     show_default=True,
     help="File format.",
 )
+@click.option("--overwrite", is_flag=True, help="Replace files of the same names in --out.")
+@_reads_database
 @_reports_errors
-def export(database, out, fmt) -> None:
-    """Write every table and view of a results database as CSV or Parquet files."""
+def export(database, out, fmt, overwrite) -> None:
+    """Write every table and view of a results database as CSV or Parquet files.
+
+    Each file is written whole or not at all; files already in --out are refused unless
+    --overwrite is given.
+    """
     from .results import export_tables
 
-    written = export_tables(database, out, fmt)
-    click.echo(f"{len(written)} files written to {out}: " + ", ".join(p.name for p in written))
+    written = export_tables(database, out, fmt, overwrite=overwrite)
+    names = ", ".join(p.name for p in written)
+    click.echo(f"{counted(len(written), 'file')} written to {out}: {names}")
 
 
 @main.command()
@@ -444,9 +522,12 @@ def progress(database, study, watch) -> None:
     """
     import time
 
+    from .exceptions import parameter_error
     from .results import progress_report
     from .text import progress_text
 
+    if not watch >= 0:  # also refuses nan
+        raise parameter_error("--watch", "prunebench progress", "0 (once) or seconds > 0", watch)
     while True:
         r = progress_report(database, study)
         click.echo(progress_text(r))

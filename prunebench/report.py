@@ -7,6 +7,7 @@ offline and can be mailed or archived as it is.
 from __future__ import annotations
 
 import base64
+import contextlib
 import html
 import io
 from pathlib import Path
@@ -14,6 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from ._version import __version__
+from .exceptions import InvalidParameterError, parameter_error
 from .plots import FIGURES, build_figures, example_curves
 from .ranks import recommendation
 from .results import load_folds, study_overview
@@ -259,12 +261,35 @@ def write_report(database: str | Path, out: str | Path, study: str | None = None
     Returns
     -------
     Path
+
+    Raises
+    ------
+    InvalidParameterError
+        If ``out`` cannot be written (a folder without write permission, a parent that is
+        a file); nothing is left behind.
     """
+    out = Path(out)
+
+    def unwritable(err: OSError) -> InvalidParameterError:
+        reason = err.strerror or type(err).__name__
+        if isinstance(err, (FileExistsError, NotADirectoryError)):
+            reason = "a file stands where a folder must be"
+        where = f": {err.filename}" if err.filename else ""
+        expected = f"a file in a folder that can be written ({reason}{where})"
+        return parameter_error("out", "write_report", expected, str(out))
+
+    try:  # before the slow part, so a bad path fails at once
+        out.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise unwritable(err) from None
     with ResultStore(database, readonly=True) as store:
         text = build_report(store, study)
-    out = Path(out)
-    out.parent.mkdir(parents=True, exist_ok=True)
     partial = out.with_name(out.name + ".partial")
-    partial.write_text(text, encoding="utf-8")
-    partial.replace(out)
+    try:
+        partial.write_text(text, encoding="utf-8")
+        partial.replace(out)
+    except OSError as err:
+        with contextlib.suppress(OSError):
+            partial.unlink(missing_ok=True)
+        raise unwritable(err) from None
     return out

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from .exceptions import QueryError, parameter_error
+from .exceptions import QueryError, StoreError, parameter_error
 from .store import ResultStore, connect_readonly
 from .vocabulary import (
     CLASSIFICATION,
@@ -44,6 +44,7 @@ __all__ = [
     "progress_report",
     "pruned_losses",
     "resolve_study",
+    "results_path",
     "run_query",
     "study_overview",
     "trial_curves",
@@ -53,7 +54,57 @@ TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
 VIEWS = ("arm_summary", "fold_differences")
 
 
-# ---- which study -----------------------------------------------------------------------
+# ---- which file, which study -------------------------------------------------------------
+
+_SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def results_path(path: str | Path) -> Path:
+    """The results database to read for ``path``: the database itself, or a study file's.
+
+    A study file names its database (its ``database`` key, else ``<stem>.sqlite`` beside
+    it), so a reader may be given either.  Any other file that is not SQLite is refused
+    here as not a results database, rather than reported as damaged by SQLite.
+
+    Parameters
+    ----------
+    path : str or Path
+        A results database or a study file; a missing path is returned as it is (the
+        store says it is missing).
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    StoreError
+        The file is neither SQLite nor a study file, or is a study file whose database
+        does not exist yet (the message names it).
+    """
+    path = Path(path)
+    try:
+        with open(path, "rb") as f:
+            head = f.read(len(_SQLITE_HEADER))
+    except OSError:
+        return path
+    if not head or head == _SQLITE_HEADER:
+        return path
+    from .study import study_database
+
+    database = study_database(path)
+    if database is None:
+        raise StoreError(
+            f"database={path}: not a results database (neither an SQLite file nor a study file)"
+        )
+    if not database.exists():
+        raise StoreError(
+            f"database={path} is a study file, not a results database; the database it "
+            f"names, {database}, does not exist (conduct the study first, or give the "
+            "database it was conducted into)"
+        )
+    return database
+
 
 
 def resolve_study(store: ResultStore, study: str | None = None) -> dict:
@@ -428,6 +479,10 @@ def _authorize(action, arg1, arg2, dbname, source):
         sqlite3.SQLITE_CREATE_TEMP_VIEW,
         sqlite3.SQLITE_TRANSACTION,
     }
+    if action == sqlite3.SQLITE_UPDATE and arg1 == "sqlite_master" and source is None:
+        # SQLite reports its own schema columns as "updated" when it sets up a table-valued
+        # pragma function (pragma_table_info(...)); the connection is read-only regardless
+        return sqlite3.SQLITE_OK
     if action in denied:
         return sqlite3.SQLITE_DENY
     if action == sqlite3.SQLITE_PRAGMA:
@@ -458,8 +513,6 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     statement = sql.strip().rstrip(";").strip()
     if not statement:
         raise QueryError("the query is empty")
-    if ";" in statement and sqlite3.complete_statement(statement.split(";", 1)[0] + ";"):
-        raise QueryError("give one statement at a time")
     match = _WRITES.match(statement)
     if match:
         raise QueryError(
@@ -480,23 +533,47 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     try:
         conn.set_authorizer(_authorize)
         try:
+            # SQLite itself refuses a second statement (a trailing comment is not one)
             cursor = conn.execute(statement)
+        except sqlite3.ProgrammingError as err:
+            if "one statement" in str(err):
+                raise QueryError("give one statement at a time") from None
+            raise QueryError(f"the query failed: {err}") from None
         except sqlite3.DatabaseError as err:
             message = str(err)
-            if "not authorized" in message or "readonly" in message:
+            if any(w in message for w in ("not authorized", "readonly", "may not be modified")):
                 raise QueryError(
                     "refused: the statement would change the results; "
                     "'prunebench sql' runs read-only queries"
                 ) from None
             raise QueryError(f"the query failed: {message}") from None
         columns = [c[0] for c in cursor.description or []]
-        return pd.DataFrame(cursor.fetchall(), columns=columns)
+        return _typed_frame(cursor.fetchall(), columns)
     finally:
         conn.close()
 
 
-def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[Path]:
+def _typed_frame(rows: list[tuple], columns: list[str]) -> pd.DataFrame:
+    """Rows as a frame whose integer columns stay integers when some values are NULL."""
+    frame = pd.DataFrame(rows, columns=columns, dtype=object)
+    for i in range(len(columns)):
+        values = [v for v in frame.iloc[:, i] if v is not None]
+        if not values or any(isinstance(v, bool) for v in values):
+            continue
+        if all(isinstance(v, int) for v in values):
+            frame.isetitem(i, pd.array(list(frame.iloc[:, i]), dtype="Int64"))
+        elif all(isinstance(v, (int, float)) for v in values):
+            frame.isetitem(i, pd.to_numeric(frame.iloc[:, i]).astype(float))
+    return frame
+
+
+def export_tables(
+    path: str | Path, out: str | Path, fmt: str = "csv", *, overwrite: bool = False
+) -> list[Path]:
     """Write every table and view of a results database as CSV or Parquet files.
+
+    Each file is written under a temporary name and renamed when whole, so a file is
+    either complete or absent.  Existing files are not replaced unless asked.
 
     Parameters
     ----------
@@ -505,6 +582,9 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
     out : str or Path
         Folder for the files (created if missing).
     fmt : {"csv", "parquet"}
+    overwrite : bool, default=False
+        Replace files of the same names already in ``out``; without it they are refused
+        before anything is written.
 
     Returns
     -------
@@ -514,20 +594,33 @@ def export_tables(path: str | Path, out: str | Path, fmt: str = "csv") -> list[P
         raise parameter_error("fmt", "export_tables", "'csv' or 'parquet'", fmt)
     results = open_results(path)
     out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
+    targets = [out / f"{name}.{fmt}" for name in TABLES + VIEWS]
+    present = [t.name for t in targets if t.exists()]
+    if present and not overwrite:
+        raise QueryError(
+            f"out={out} already holds {', '.join(present)}; give overwrite=True to replace "
+            f"{'it' if len(present) == 1 else 'them'}, or another folder"
+        )
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise QueryError(f"out={out}: cannot create the folder ({err.strerror})") from None
     written = []
-    for name in TABLES + VIEWS:
+    for name, target in zip(TABLES + VIEWS, targets, strict=True):
         frame = results.table(name)
-        target = out / f"{name}.{fmt}"
         partial = target.with_name(target.name + ".partial")
-        if fmt == "csv":
-            frame.to_csv(partial, index=False)
-        else:
-            try:
+        try:
+            if fmt == "csv":
+                frame.to_csv(partial, index=False)
+            else:
                 frame.to_parquet(partial, index=False)
-            except ImportError:
-                raise QueryError("Parquet export needs pyarrow: pip install pyarrow") from None
-        partial.replace(target)
+            partial.replace(target)
+        except ImportError:
+            partial.unlink(missing_ok=True)
+            raise QueryError("Parquet export needs pyarrow: pip install pyarrow") from None
+        except OSError as err:
+            partial.unlink(missing_ok=True)
+            raise QueryError(f"out={out}: cannot write {target.name} ({err.strerror})") from None
         written.append(target)
     return written
 

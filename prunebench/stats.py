@@ -349,7 +349,12 @@ def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, 
             continue
         tasks[task] = chosen
     if not tasks:
-        raise StatsError(f"no dataset of this study has the metric {metric!r}")
+        families = {family_of(task) for task in folds["task"].unique()}
+        known = [m for m in metric_names() if any(m in metric_names(f) for f in families)]
+        raise StatsError(
+            f"no dataset of this study has the metric {metric!r}; its datasets have "
+            f"{', '.join(known)}"
+        )
     return folds[folds["task"].isin(tasks)], tasks
 
 

@@ -6,6 +6,7 @@ A study file is TOML::
     description = "Which pruning defaults for the loan-desk trees?"
     seed = 7
     database = "harbour-loans.sqlite"     # optional; relative to the study file
+    max_tree_fits = 50_000_000            # optional; plans above 10,000,000 fits need it
     datasets = ["breast_cancer", "wine"]  # or [[datasets]] tables: name = "...", plus parameters
 
     [outer]                               # nested CV: outer repeated K-fold
@@ -47,7 +48,7 @@ from .datasets import (
 from .exceptions import StudyError
 from .selection import parse_rule
 from .trials import FACTORS, SearchSpec, Study, Trial, TrialGroup
-from .vocabulary import CLASSIFICATION, CRITERIA, FAMILIES, REGRESSION, family_of
+from .vocabulary import CLASSIFICATION, CRITERIA, FAMILIES, REGRESSION, counted, family_of
 from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
@@ -61,6 +62,7 @@ __all__ = [
     "TrialGroup",
     "load_study",
     "parse_study",
+    "study_database",
 ]
 
 CLASSIFICATION_CRITERIA = CRITERIA[CLASSIFICATION]
@@ -75,7 +77,13 @@ _TOP_KEYS = {
     "factors",
     "search",
     "time_limit",
+    "max_tree_fits",
 }
+#: tree fits a study may plan without saying so (``max_tree_fits``): about 14 times the
+#: largest example study (studies/overnight.toml, 714,000 fits); at a few milliseconds a
+#: fit that is a day or more of one core, so a larger plan is more often a mistyped
+#: number than an intent
+MAX_TREE_FITS = 10_000_000
 _SAMPLERS = ("tpe", "random", "grid")
 _SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
 # a search varies the k of the k-SE rule ("se") where a sweep names rules
@@ -334,6 +342,8 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     factors = {task: _task_levels(check, task, tasks, factors_doc, per_task) for task in tasks}
     for key, data in loaded.items():
         _check_folds(check, key, data, folds, factors, per_task)
+        _check_leaves(check, key, data, folds, factors, per_task, search)
+    _check_fits(check, top["max_tree_fits"], repeats, folds, loaded, factors, search)
     database = top["database"]
     return Study(
         name=top["name"],
@@ -383,7 +393,11 @@ def _top_section(check: _Checker, doc: dict, source: str) -> dict:
     database = doc.get("database")
     if database is not None and (not isinstance(database, str) or not database.strip()):
         raise check.fail("database", "must be a file path")
+    max_fits = doc.get("max_tree_fits")
+    if max_fits is not None and (not _is_int(max_fits) or max_fits < 1):
+        raise check.fail("max_tree_fits", f"must be an integer >= 1; got {max_fits!r}")
     return {
+        "max_tree_fits": max_fits,
         "name": name,
         "description": description,
         "seed": seed,
@@ -525,7 +539,7 @@ def _check_folds(
             where += f" (column {data.info.target!r} of {data.info.file})"
         raise check.fail(
             "outer.folds",
-            f"{folds} folds is more than the {data.smallest_class} rows of class "
+            f"{folds} folds is more than the {counted(data.smallest_class, 'row')} of class "
             f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
         )
     # the inner CV runs on the outer-training part: about (folds-1)/folds of it
@@ -539,9 +553,113 @@ def _check_folds(
     if too_many:
         raise check.fail(
             inner_key,
-            f"{too_many[0]} inner folds is more than the about {inner_rows} "
-            f"rows of the smallest class of dataset {key!r} in an outer-training part",
+            f"{too_many[0]} inner folds is more than the about {counted(inner_rows, 'row')} "
+            f"of the smallest class of dataset {key!r} in an outer-training part",
         )
+
+
+def _largest(search: SearchSpec | None, name: str, levels: list) -> int:
+    """The largest level of an integer factor: from the search space, else the sweep."""
+    if search is not None and name in search.space:
+        spec = search.space[name]
+        return max(spec[1]) if spec[0] == "choices" else spec[2]
+    return max(levels)
+
+
+def _check_leaves(
+    check: _Checker,
+    key: str,
+    data: LoadedDataset,
+    folds: int,
+    factors: dict,
+    per_task: dict,
+    search: SearchSpec | None,
+) -> None:
+    """A leaf may not need more rows than the smallest outer-training part holds."""
+    task = family_of(data.task)
+    n = len(data.y)
+    rows = n - -(-n // folds)  # the largest test fold is ceil(n / folds) rows
+    largest = _largest(search, "min_samples_leaf", factors[task]["min_samples_leaf"])
+    if largest <= rows:
+        return
+    if search is not None and "min_samples_leaf" in search.space:
+        leaf_key = "search.space.min_samples_leaf"
+    elif "min_samples_leaf" in per_task.get(task, {}):
+        leaf_key = f"factors.{task}.min_samples_leaf"
+    else:
+        leaf_key = "factors.min_samples_leaf"
+    raise check.fail(
+        leaf_key,
+        f"a leaf of {largest} rows is more than the {counted(rows, 'row')} of the smallest "
+        f"outer-training part of dataset {key!r} ({n} rows, {folds} folds)",
+    )
+
+
+def _check_fits(
+    check: _Checker,
+    limit: int | None,
+    repeats: int,
+    folds: int,
+    loaded: dict,
+    factors: dict,
+    search: SearchSpec | None,
+) -> None:
+    """The plan's tree fits stay under ``max_tree_fits`` (default :data:`MAX_TREE_FITS`)."""
+    fits = 0
+    for data in loaded.values():
+        levels = factors[family_of(data.task)]
+        if search is not None:
+            # each configuration is one group; count its largest inner CV
+            inner = _largest(search, "inner_folds", levels["inner_folds"])
+            fits += search.configurations * (1 + inner)
+            continue
+        shared = 1
+        for factor in ("criterion", "max_depth", "min_samples_leaf", "prune_risk"):
+            shared *= len(levels[factor])
+        fits += shared * sum(1 + k for k in levels["inner_folds"])
+    fits *= repeats * folds  # each outer fold grows the full tree and one per inner fold
+    if fits <= (limit or MAX_TREE_FITS):
+        return
+    if limit is not None:
+        raise check.fail(
+            "max_tree_fits",
+            f"the plan has {fits:,} tree fits, more than max_tree_fits = {limit:,}; "
+            "raise it, or lower the repeats, folds or levels",
+        )
+    raise check.fail(
+        "max_tree_fits",
+        f"the plan has {fits:,} tree fits (outer {repeats:,} x {folds:,}), more than the "
+        f"{MAX_TREE_FITS:,} a study may plan without saying so; lower the repeats, folds or "
+        f"levels, or allow it with max_tree_fits = {fits} at the top of the study file",
+        line_key="outer.repeats",
+    )
+
+
+def study_database(path: str | Path) -> Path | None:
+    """The results database a study file writes to, read without loading its data sets.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Path or None
+        Its ``database`` (relative to the study file), else ``<stem>.sqlite`` beside it,
+        as ``prunebench conduct`` uses without ``--db``; None when the file is not a study
+        file (not TOML text, or without the keys every study has).
+    """
+    path = Path(path)
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        return None
+    if not {"name", "seed", "datasets"} <= set(doc):
+        return None
+    database = doc.get("database")
+    if isinstance(database, str) and database.strip():
+        return Path(os.path.normpath(path.parent / database))
+    return path.with_suffix(".sqlite")
 
 
 def load_study(path: str | Path) -> Study:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import textwrap
 
 from .snippets import CAUTION, estimator_block, study_fragment
-from .vocabulary import REGRESSION, config_label, family_of, higher_is_better
+from .vocabulary import REGRESSION, config_label, counted, family_of, higher_is_better
 
 __all__ = [
     "compare_text",
@@ -18,6 +18,7 @@ __all__ = [
     "demo_text",
     "plan_text",
     "progress_text",
+    "query_text",
     "rank_text",
     "recommend_text",
 ]
@@ -54,14 +55,14 @@ def _search_plan_text(study) -> list[str]:
     spec = study.search
     lines = [
         f"study {study.name!r}: a search ({spec.sampler} sampler, "
-        f"{spec.configurations} configurations, early stopping "
+        f"{counted(spec.configurations, 'configuration')}, early stopping "
         f"{'on' if spec.early_stopping else 'off'}, seed {spec.seed})"
     ]
     for name, value in spec.space.items():
         shown = list(value[1:]) if value[0] != "choices" else value[1]
         lines.append(f"  {name}: {value[0]} {shown}")
     lines.append(
-        f"each configuration runs on {len(study.datasets)} datasets: "
+        f"each configuration runs on {counted(len(study.datasets), 'dataset')}: "
         f"{', '.join(study.datasets)}; outer CV {study.repeats} x {study.folds}"
     )
     return lines
@@ -83,7 +84,7 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
         return "\n".join(_search_plan_text(study))
     lines = [
         f"study {study.name!r}: {study.description}".rstrip(": "),
-        f"seed {study.seed}, outer CV {study.repeats} repeats x {study.folds} folds, "
+        f"seed {study.seed}, outer CV {counted(study.repeats, 'repeat')} x {study.folds} folds, "
         f"database {database}",
         f"{'dataset':<28} {'task':<11} {'rows':>7} {'features':>8} {'trials':>6} "
         f"{'tree fits':>9} {'est. s':>8}",
@@ -98,8 +99,9 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
     for task, levels in study.factors.items():
         lines.append(f"factors ({task}): " + "; ".join(f"{k} {v}" for k, v in levels.items()))
     lines += [
-        f"{len(study.trials())} trials in {len(study.groups())} groups (trials that differ "
-        f"only in the rule share their fits); {total_fits} tree fits",
+        f"{counted(len(study.trials()), 'trial')} in {counted(len(study.groups()), 'group')} "
+        f"(trials that differ only in the rule share their fits); "
+        f"{counted(total_fits, 'tree fit')}",
         f"rough time: {total_seconds / 60:.1f} min with 1 worker, "
         f"{total_seconds / 60 / max(workers, 1):.1f} min with {workers}",
     ]
@@ -108,7 +110,7 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
 
 def _search_found_text(found: dict) -> list[str]:
     lines = [
-        f"search: {found['configurations']} configurations finished, "
+        f"search: {counted(found['configurations'], 'configuration')} finished, "
         f"{found['stopped_early']} of them stopped early, {found['failed']} failed; "
         f"Optuna's storage in {found['storage']}"
     ]
@@ -135,8 +137,9 @@ def conduct_text(summary, table) -> str:
         From :func:`prunebench.results.conduct_table`.
     """
     lines = [
-        f"{summary.done} trials done, {summary.failed} failed, {summary.skipped} already "
-        f"finished, of {summary.total}; {summary.seconds:.1f} s; results in {summary.database}"
+        f"{counted(summary.done, 'trial')} done, {summary.failed} failed, "
+        f"{summary.skipped} already finished, of {summary.total}; {summary.seconds:.1f} s; "
+        f"results in {summary.database}"
     ]
     lines += [f"  failed: {error}" for error in summary.errors[:5]]
     if summary.search is not None:
@@ -167,19 +170,27 @@ def progress_text(report: dict) -> str:
     rate = "-" if report["rate_per_minute"] is None else f"{report['rate_per_minute']:.1f}"
     lines = [
         f"study {report['study']!r}: {report['done']} done, {report['failed']} failed, "
-        f"{report['pending']} pending of {report['total']} trials; {rate} trials/min; "
+        f"{report['pending']} pending of {counted(report['total'], 'trial')}; {rate} trials/min; "
         f"ETA {report['eta']}; last finished {report['last_finished'] or '-'}"
     ]
     lines += [f"  recent failure: {error}" for error in report["errors"]]
     return "\n".join(lines)
 
 
+def query_text(frame) -> str:
+    """The rows of a ``prunebench sql`` query as a table; NULL shows as a blank cell."""
+    if not len(frame):
+        return "(no rows)"
+    shown = frame.astype(object).where(frame.notna(), "")
+    return shown.to_string(index=False, max_colwidth=40)
+
+
 def demo_text(dataset: str, data, model, cv: int) -> str:
     """The CV curve of a fitted pruned tree and the alpha its rule chose."""
     loss = "MSE" if family_of(data.task) == REGRESSION else "error rate"
     lines = [
-        f"{dataset}: {len(data.y)} rows, {data.X.shape[1]} features; grown with "
-        f"criterion={model.criterion}, pruned by {model.prune_risk}, {cv}-fold CV",
+        f"{dataset}: {counted(len(data.y), 'row')}, {counted(data.X.shape[1], 'feature')}; "
+        f"grown with criterion={model.criterion}, pruned by {model.prune_risk}, {cv}-fold CV",
         f"{'alpha':>12} {'leaves':>7} {'CV ' + loss:>14} {'SE':>10}",
     ]
     for row in model.cv_curve_.itertuples():
@@ -189,7 +200,8 @@ def demo_text(dataset: str, data, model, cv: int) -> str:
         )
     lines.append(
         f"rule {model.rule}: alpha = {model.ccp_alpha_:.6g}, "
-        f"{model.get_n_leaves()} leaves (full tree {model.full_tree_.get_n_leaves()}), "
+        f"{counted(model.get_n_leaves(), 'leaf', 'leaves')} (full tree "
+        f"{model.full_tree_.get_n_leaves()}), "
         f"depth {model.get_depth()}"
     )
     return "\n".join(lines)
@@ -235,7 +247,8 @@ def compare_text(table) -> str:
         width = (rows["ci_high"] - rows["ci_low"]) / (rows["naive_ci_high"] - rows["naive_ci_low"])
         lines.append(
             _wrap(
-                f"{len(rows)} rows: {corrected} differences significant at 5% with the "
+                f"{counted(len(rows), 'row')}: {counted(corrected, 'difference')} significant "
+                "at 5% with the "
                 f"corrected t, {naive} with the naive t (folds treated as independent), whose "
                 f"intervals are {width.median():.1f}x narrower (median)."
             )
@@ -248,7 +261,8 @@ def _rank_heading(res: dict, alpha: float) -> list[str]:
     f, n = res["friedman"], len(res["datasets"])
     lines = [
         _wrap(
-            f"{res['family']}: {len(res['table'])} configurations on {n} datasets, "
+            f"{res['family']}: {counted(len(res['table']), 'configuration')} on "
+            f"{counted(n, 'dataset')}, "
             f"metric {res['metric']} (rank 1 = best)"
         )
     ]
@@ -327,7 +341,8 @@ def recommend_text(recs: list[dict]) -> str:
         lines.append(
             _wrap(
                 f"{config_label(r['config'])}: mean rank {r['mean_rank']:.2f} of "
-                f"{len(ranked['table'])} configurations on {len(ranked['datasets'])} datasets, "
+                f"{counted(len(ranked['table']), 'configuration')} on "
+                f"{counted(len(ranked['datasets']), 'dataset')}, "
                 f"{r['mean_leaves']:.1f} leaves on average",
                 "   ",
             )

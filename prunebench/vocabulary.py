@@ -29,6 +29,7 @@ __all__ = [
     "Factor",
     "Metric",
     "config_label",
+    "counted",
     "default_metric",
     "factor_names",
     "family_of",
@@ -298,3 +299,30 @@ class Configuration:
 def config_label(config) -> str:
     """A short label of a configuration given as a :class:`Configuration`, tuple or mapping."""
     return Configuration.of(config).label()
+
+
+# ---- words in messages -------------------------------------------------------------------
+
+
+def counted(n: int, noun: str, plural: str | None = None) -> str:
+    """``"1 row"``, ``"2 rows"``: a count with its noun in the number it needs.
+
+    Parameters
+    ----------
+    n : int
+    noun : str
+        The singular (``"row"``, ``"class"``, ``"study"``).
+    plural : str, optional
+        The plural when English spells it otherwise (``"leaves"``); by default ``-es``
+        after s, x, z, ch and sh, ``-ies`` for a consonant and y, else ``-s``.
+    """
+    if n == 1:
+        return f"{n} {noun}"
+    if plural is None:
+        if noun.endswith(("s", "x", "z", "ch", "sh")):
+            plural = noun + "es"
+        elif noun.endswith("y") and noun[-2:-1] not in tuple("aeiou"):
+            plural = noun[:-1] + "ies"
+        else:
+            plural = noun + "s"
+    return f"{n} {plural}"

@@ -35,6 +35,21 @@ def test_every_command_is_in_the_readme(name):
     assert f"prunebench {name}" in readme
 
 
+@pytest.mark.parametrize(
+    "name", ["compare", "rank", "recommend", "figures", "report", "progress", "sql", "export"]
+)
+def test_read_commands_say_they_take_the_study_file(name):
+    result = CliRunner().invoke(main, [name, "--help"])
+    assert "or the study file that names it" in " ".join(result.output.split())
+    if name not in ("sql", "export"):
+        assert "[DB_OR_STUDY]" in result.output
+
+
+def test_export_help_names_overwrite():
+    result = CliRunner().invoke(main, ["export", "--help"])
+    assert "--overwrite" in result.output and "whole or not at all" in result.output
+
+
 def test_demo_prints_curve_and_chosen_alpha():
     result = CliRunner().invoke(main, ["demo", "--dataset", "iris", "--cv", "5", "--rule", "min"])
     assert result.exit_code == 0, result.output
@@ -48,6 +63,50 @@ def test_demo_bad_rule_is_one_line_and_exit_2():
     assert result.exit_code == 2
     assert result.output.strip().count("\n") == 0
     assert "'rule'" in result.output
+
+
+@pytest.mark.parametrize(
+    "args, named, bound",
+    [
+        # breast_cancer: 212 malignant of 569 rows; diabetes: 442 rows
+        # (scikit-learn's dataset descriptions, from memory)
+        (["--cv", "1000"], "'--cv'", "at most 212"),
+        (["--dataset", "diabetes", "--cv", "443"], "'--cv'", "at most 442"),
+        (["--dataset", "iris", "--criterion", "squared_error"], "'--criterion'", "gini, entropy"),
+        (["--criterion", "bogus"], "'--criterion'", "gini, entropy"),
+        (["--dataset", "diabetes", "--criterion", "gini"], "'--criterion'", "squared_error"),
+    ],
+)
+def test_demo_bad_folds_or_criterion_is_one_line_and_exit_2(args, named, bound):
+    result = CliRunner().invoke(main, ["demo", *args])
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert named in result.output and bound in result.output
+
+
+@pytest.mark.parametrize(
+    "args, named",
+    [
+        (["rank", "--alpha", "2"], "'--alpha'"),
+        (["rank", "--alpha", "0"], "'--alpha'"),
+        (["rank", "--alpha", "0.6"], "'--alpha'"),
+        (["recommend", "--alpha", "-1"], "'--alpha'"),
+        (["recommend", "--alpha", "nan"], "'--alpha'"),
+        (["progress", "--watch", "-1"], "'--watch'"),
+        (["progress", "--watch", "nan"], "'--watch'"),
+    ],
+)
+def test_significance_levels_and_watch_intervals_are_bounded(args, named, small_db):
+    result = CliRunner().invoke(main, [*args, "--db", str(small_db)])
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert named in result.output and "nan ranks" not in result.output
+
+
+def test_the_largest_significance_level_is_accepted(small_db):
+    result = CliRunner().invoke(main, ["rank", "--alpha", "0.5", "--db", str(small_db)])
+    assert result.exit_code == 0, result.output
+    assert "critical difference at 0.5 = " in result.output and "nan" not in result.output
 
 
 def test_datasets_lists_every_kind_as_json():

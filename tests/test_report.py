@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import re
 import shutil
 import subprocess
@@ -106,3 +107,43 @@ def test_report_of_a_missing_database_is_one_line(tmp_path):
     )
     assert result.exit_code != 0 and "no such results database" in result.output
     assert not (tmp_path / "r.html").exists()
+
+
+def _immutable(path):
+    """Make a folder unwritable even for root (chattr +i), else by its mode; the undo."""
+    if os.geteuid() == 0:
+        if shutil.which("chattr") is None:
+            pytest.skip("chattr is needed to make a folder read-only for root")
+        if subprocess.run(["chattr", "+i", str(path)], capture_output=True).returncode:
+            pytest.skip("this file system does not support the immutable attribute")
+        return lambda: subprocess.run(["chattr", "-i", str(path)], check=True)
+    os.chmod(path, 0o555)
+    return lambda: os.chmod(path, 0o755)
+
+
+def test_report_into_a_folder_that_cannot_be_written_is_one_line(small_db, tmp_path):
+    folder = tmp_path / "locked"
+    folder.mkdir()
+    undo = _immutable(folder)
+    try:
+        result = CliRunner().invoke(
+            main, ["report", "--db", str(small_db), "--out", str(folder / "r.html")]
+        )
+        left = sorted(p.name for p in folder.iterdir())
+    finally:
+        undo()
+    assert result.exit_code == 2, result.output
+    assert result.output.startswith("error: ") and result.output.count("\n") == 1
+    assert "'out'" in result.output and "r.html" in result.output
+    assert left == []
+
+
+def test_report_whose_parent_is_a_file_is_one_line(small_db, tmp_path):
+    (tmp_path / "notes.txt").write_text("a file, not a folder")
+    for out in (tmp_path / "notes.txt" / "r.html", tmp_path / "notes.txt" / "sub" / "r.html"):
+        result = CliRunner().invoke(main, ["report", "--db", str(small_db), "--out", str(out)])
+        assert result.exit_code == 2, result.output
+        assert result.output.startswith("error: ") and result.output.count("\n") == 1
+        assert "'out'" in result.output and "notes.txt" in result.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["notes.txt"]
+    assert (tmp_path / "notes.txt").read_text() == "a file, not a folder"

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import io
 import json
@@ -9,6 +10,7 @@ import sqlite3
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -43,6 +45,10 @@ def _digest(path):
         "  delete from curves;",
         "VACUUM",
         "SELECT 1; DELETE FROM folds",
+        "SELECT 1; -- note\nDELETE FROM folds",
+        "/* a comment first */ DELETE FROM folds",
+        "WITH x AS (SELECT 1) UPDATE sqlite_master SET sql = ''",
+        "SELECT * FROM pragma_table_info('trials'); DROP TABLE folds",
         "BEGIN",
     ],
 )
@@ -67,6 +73,45 @@ def test_sql_reads_with_json_and_csv(small_db):
     assert pragma.exit_code == 0 and "test_fingerprint" in pragma.output
     broken = CliRunner().invoke(main, ["sql", "--db", str(small_db), "SELECT nope FROM folds"])
     assert broken.exit_code == 2 and "no such column" in broken.output
+
+
+@pytest.mark.parametrize(
+    "query",
+    [
+        "SELECT name FROM pragma_table_info('trials')",
+        "SELECT name FROM pragma_table_info('trials'); -- note",
+    ],
+)
+def test_sql_runs_pragma_functions_and_queries_with_a_trailing_comment(query, small_db):
+    before = _digest(small_db)
+    result = CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--csv"])
+    assert result.exit_code == 0, result.output
+    # the reference: SQLite's own PRAGMA table_info, read with the standard library
+    conn = sqlite3.connect(small_db)
+    expected = [r[1] for r in conn.execute("PRAGMA table_info(trials)")]
+    conn.close()
+    assert result.output.splitlines() == ["name", *expected]
+    note = CliRunner().invoke(main, ["sql", "--db", str(small_db), "SELECT 1 AS one; -- note"])
+    assert note.exit_code == 0 and note.output.split() == ["one", "1"]
+    assert _digest(small_db) == before
+
+
+def test_sql_prints_integers_as_integers_and_null_as_blank(small_db):
+    # the fixture sweeps max_depth "none" (stored as NULL) and 3
+    query = "SELECT DISTINCT max_depth, inner_folds FROM trials ORDER BY max_depth, inner_folds"
+    run = functools.partial(CliRunner().invoke, main, ["sql", "--db", str(small_db), query])
+    as_csv = CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--csv"]).output
+    assert as_csv.splitlines() == ["max_depth,inner_folds", ",3", ",4", "3,3", "3,4"]
+    as_json = json.loads(
+        CliRunner().invoke(main, ["sql", "--db", str(small_db), query, "--json"]).output
+    )
+    assert as_json[0] == {"max_depth": None, "inner_folds": 3}
+    assert as_json[-1] == {"max_depth": 3, "inner_folds": 4}
+    table = run().output.splitlines()
+    assert [line.split() for line in table] == [
+        ["max_depth", "inner_folds"], ["3"], ["4"], ["3", "3"], ["3", "4"]
+    ]
+    assert "NaN" not in run().output and ".0" not in run().output
 
 
 def test_open_results_round_trips_what_the_store_wrote(small_db):
@@ -109,6 +154,131 @@ def test_export_writes_every_table(small_db, tmp_path):
     )
     folds = pd.read_parquet(tmp_path / "pq" / "folds.parquet")
     assert len(folds) == 48 * 6 * 2
+
+
+def test_export_refuses_to_replace_files_unless_overwrite(small_db, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "trials.csv").write_text("mine\n")
+    args = ["export", "--db", str(small_db), "--out", str(out)]
+    refused = CliRunner().invoke(main, args)
+    assert refused.exit_code == 2
+    assert refused.output.startswith("error: ") and refused.output.count("\n") == 1
+    assert "trials.csv" in refused.output and "--overwrite" in refused.output
+    # nothing written: the file kept, no other table exported
+    assert sorted(p.name for p in out.iterdir()) == ["trials.csv"]
+    assert (out / "trials.csv").read_text() == "mine\n"
+    replaced = CliRunner().invoke(main, [*args, "--overwrite"])
+    assert replaced.exit_code == 0, replaced.output
+    assert len(pd.read_csv(out / "trials.csv")) == len(open_results(small_db).trials())
+
+
+def test_export_writes_each_file_whole_or_not_at_all(small_db, tmp_path, monkeypatch):
+    real = pd.DataFrame.to_csv
+
+    def fails_on_folds(frame, target, *args, **kwargs):
+        if "test_fingerprint" in frame.columns:  # the folds table
+            Path(target).write_text("half a fi")
+            raise OSError(28, "No space left on device")
+        return real(frame, target, *args, **kwargs)
+
+    monkeypatch.setattr(pd.DataFrame, "to_csv", fails_on_folds)
+    result = CliRunner().invoke(main, ["export", "--db", str(small_db), "--out", str(tmp_path)])
+    assert result.exit_code == 2
+    assert result.output.count("\n") == 1 and "folds.csv" in result.output
+    assert "No space left" in result.output
+    names = {p.name for p in tmp_path.iterdir()}
+    assert "folds.csv" not in names and not any(n.endswith(".partial") for n in names)
+
+
+TINY = """\
+name = "tiny"
+seed = 4
+database = "results/tiny.sqlite"
+datasets = ["iris", "wine"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+max_depth = ["none", 2]
+inner_folds = [3]
+"""
+
+
+@pytest.fixture(scope="module")
+def tiny_study(tmp_path_factory):
+    """A conducted study file whose ``database`` key puts the results in a subfolder."""
+    folder = tmp_path_factory.mktemp("tiny")
+    study = folder / "tiny.toml"
+    study.write_text(TINY)
+    result = CliRunner().invoke(main, ["conduct", str(study)])
+    assert result.exit_code == 0, result.output
+    return study, folder / "results" / "tiny.sqlite"
+
+
+@pytest.mark.parametrize(
+    "command",
+    [
+        ["compare"],
+        ["compare", "--csv"],
+        ["rank", "--json"],
+        ["progress"],
+        ["sql", "SELECT COUNT(*) AS n FROM trials"],
+    ],
+)
+def test_read_commands_accept_the_study_file_for_its_database(command, tiny_study):
+    study, db = tiny_study
+    name, *rest = command
+    reference = CliRunner().invoke(main, [name, "--db", str(db), *rest])
+    assert reference.exit_code == 0, reference.output
+    ways = [[name, "--db", str(study), *rest]]
+    if name != "sql":  # sql's argument is the query
+        ways += [[name, str(study), *rest], [name, str(db), *rest]]
+    for args in ways:
+        result = CliRunner().invoke(main, args)
+        assert result.exit_code == 0, (args, result.output)
+        if name != "progress":  # its rate line depends on the time
+            assert result.output == reference.output, args
+
+
+def test_export_accepts_the_study_file_for_its_database(tiny_study, tmp_path):
+    study, db = tiny_study
+    result = CliRunner().invoke(main, ["export", "--db", str(study), "--out", str(tmp_path)])
+    assert result.exit_code == 0, result.output
+    assert len(pd.read_csv(tmp_path / "trials.csv")) == len(open_results(db).trials()) == 4
+
+
+def test_a_file_that_is_no_results_database_is_named_so(tmp_path):
+    study = tmp_path / "fresh.toml"
+    study.write_text(TINY.replace('database = "results/tiny.sqlite"\n', ""))
+    notes = tmp_path / "notes.csv"
+    notes.write_text("a,b\n1,2\n")
+    for args, says in [
+        (["compare", "--db", str(study)], f"the database it names, {tmp_path / 'fresh.sqlite'}"),
+        (["rank", str(study)], "is a study file, not a results database"),
+        (["sql", "--db", str(notes), "SELECT 1"], "not a results database"),
+        (["recommend", "--db", str(notes)], "neither an SQLite file nor a study file"),
+    ]:
+        result = CliRunner().invoke(main, args)
+        assert result.exit_code != 0
+        assert result.output.startswith("error: ") and result.output.count("\n") == 1
+        assert says in result.output, result.output
+        assert "damaged" not in result.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["fresh.toml", "notes.csv"]
+
+
+def test_results_path_of_a_study_file_is_where_conduct_writes(tmp_path):
+    from prunebench.execute import default_database
+    from prunebench.study import load_study
+
+    for text in (TINY, TINY.replace('database = "results/tiny.sqlite"\n', "")):
+        study = tmp_path / "s.toml"
+        study.write_text(text)
+        expected = default_database(load_study(study))
+        expected.parent.mkdir(exist_ok=True)
+        sqlite3.connect(expected).close()  # an empty SQLite file is enough to be found
+        assert results.results_path(study) == expected
+        assert results.results_path(expected) == expected
 
 
 STUDY = """\

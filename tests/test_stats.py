@@ -339,3 +339,19 @@ def test_two_configurations_on_one_dataset_are_paired(folds):
     assert t.mean == pytest.approx((a - b).mean()) and t.n_folds == 6
     with pytest.raises(stats.StatsError, match="names 4 trials"):
         stats.compare_configurations(folds, "wine", {"criterion": "gini"}, {"rule": "min"})
+
+
+def test_an_unknown_metric_lists_the_metrics_of_the_study_families(folds, small_db):
+    # mixed study: every metric of both families, in the vocabulary's column order
+    with pytest.raises(stats.StatsError) as mixed:
+        stats.comparison(folds, "bogus")
+    assert str(mixed.value).endswith(
+        "its datasets have error, accuracy, balanced_accuracy, log_loss, brier, mse, mae, r2"
+    )
+    # classification only: a regression metric is unknown there, and only the classification
+    # metrics are listed; one line on the command line, exit 2
+    result = CliRunner().invoke(main, ["compare", "--db", str(small_db), "--metric", "mse"])
+    assert result.exit_code == 2 and result.output.count("\n") == 1
+    assert result.output.rstrip().endswith(
+        "its datasets have error, accuracy, balanced_accuracy, log_loss, brier"
+    )

@@ -135,6 +135,24 @@ MALFORMED = [
     ("repeated level", ('["none", 3]', "[3, 3]"), "factors.max_depth", "repeated"),
     ("not TOML", ("seed = 5", "seed = = 5"), None, "not valid TOML"),
     ("bad name", ('name = "unit"', 'name = "my study!"'), "name", "letters"),
+    (
+        "tree fits beyond the limit",
+        ("repeats = 2", "repeats = 1000000000"),
+        "max_tree_fits",
+        "allow it with max_tree_fits = ",
+    ),
+    (
+        "max_tree_fits not an integer",
+        ("seed = 5", 'seed = 5\nmax_tree_fits = "many"'),
+        "max_tree_fits",
+        "integer >= 1",
+    ),
+    (
+        "leaf beyond the outer-training part",
+        ("inner_folds = [3]", "inner_folds = [3]\nmin_samples_leaf = [1, 101]"),
+        "factors.min_samples_leaf",
+        "100 rows of the smallest outer-training part of dataset 'iris'",
+    ),
 ]
 
 
@@ -161,6 +179,37 @@ def test_malformed_studies_give_one_line_exit_2_and_touch_no_database(case, tmp_
         assert phrase in message, message
     assert existing.read_bytes() == b"results that must not change"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml", "kept.sqlite"]
+
+
+def test_max_tree_fits_bounds_the_plan_exactly():
+    # the reference count: every trial group's outer folds, each growing the full tree and
+    # one tree per inner fold, from the expansion in trials.py
+    study = parse_study(GOOD)
+    fits = sum(study.repeats * study.folds * (1 + g.inner_folds) for g in study.groups())
+    assert fits == 8 * 2 * 3 * (1 + 3)
+    allowed = GOOD.replace("seed = 5", f"seed = 5\nmax_tree_fits = {fits}")
+    assert parse_study(allowed).repeats == 2
+    with pytest.raises(StudyError, match=f"{fits} tree fits, more than max_tree_fits = {fits - 1}"):
+        parse_study(GOOD.replace("seed = 5", f"seed = 5\nmax_tree_fits = {fits - 1}"))
+
+
+def test_a_huge_plan_runs_only_when_the_study_says_so():
+    huge = GOOD.replace("repeats = 2", "repeats = 1000000000")
+    with pytest.raises(StudyError) as refused:
+        parse_study(huge, source="huge.toml")
+    # the line of the number that made the plan huge
+    line = GOOD.splitlines().index("repeats = 2") + 1
+    assert str(refused.value).startswith(f"huge.toml:{line}: key 'max_tree_fits': ")
+    assert "96,000,000,000 tree fits" in str(refused.value)
+    said = parse_study(huge.replace("seed = 5", "seed = 5\nmax_tree_fits = 96000000000"))
+    assert said.repeats == 1_000_000_000
+
+
+def test_the_largest_leaf_may_fill_the_smallest_outer_training_part():
+    # iris: 150 rows in 3 outer folds of 50, so every outer-training part has 100 rows
+    text = GOOD.replace("inner_folds = [3]", "inner_folds = [3]\nmin_samples_leaf = [100]")
+    study = parse_study(text)
+    assert study.factors["classification"]["min_samples_leaf"] == [100]
 
 
 def test_messages_carry_the_line_of_the_key(tmp_path):

@@ -52,6 +52,30 @@ def test_conduct_text_has_one_row_per_dataset_rule_and_metric():
     assert lines[-1].startswith("next: prunebench compare --db r.sqlite")
 
 
+def test_counts_of_one_are_singular():
+    summary = ConductSummary(database=Path("r.sqlite"), total=1, done=1)
+    empty = pd.DataFrame(columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned"])
+    assert conduct_text(summary, empty).startswith("1 trial done, 0 failed")
+    report = {
+        "study": "s", "done": 1, "failed": 0, "pending": 0, "total": 1,
+        "rate_per_minute": None, "eta": "-", "last_finished": None, "errors": [],
+    }
+    assert " pending of 1 trial; " in progress_text(report)
+    study = parse_study(
+        'name = "one"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\nfolds = 2\n'
+        '[factors]\ninner_folds = [2]\n'
+    )
+    text = plan_text(study, [], Path("one.sqlite"), 1)
+    assert "outer CV 1 repeat x 2 folds" in text
+    assert "1 trial in 1 group (trials that differ only in the rule" in text
+    many = parse_study(
+        'name = "two"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 2\nfolds = 2\n'
+        '[factors]\ninner_folds = [2]\nrule = ["min", "1se"]\n'
+    )
+    assert "2 trials in 1 group " in plan_text(many, [], Path("two.sqlite"), 1)
+    assert "outer CV 2 repeats x 2 folds" in plan_text(many, [], Path("two.sqlite"), 1)
+
+
 def test_plan_text_of_a_search_lists_its_space():
     study = parse_study(
         'name = "p"\nseed = 1\ndatasets = ["iris"]\n[search]\nsampler = "random"\n'
@@ -61,5 +85,5 @@ def test_plan_text_of_a_search_lists_its_space():
     assert text.splitlines() == [
         "study 'p': a search (random sampler, 4 configurations, early stopping on, seed 1)",
         "  max_depth: choices [1, 2]",
-        "each configuration runs on 1 datasets: iris; outer CV 10 x 10",
+        "each configuration runs on 1 dataset: iris; outer CV 10 x 10",
     ]

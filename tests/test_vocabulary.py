@@ -160,3 +160,23 @@ def test_an_added_metric_reaches_folds_compare_and_export(doubled_error, tmp_pat
         with open(out / f"{name}.csv", newline="") as f:
             table = list(csv.DictReader(f))
         assert all(float(r["doubled_error"]) == pytest.approx(2 * float(r["error"])) for r in table)
+
+
+@pytest.mark.parametrize(
+    "n, noun, plural, expected",
+    [
+        (1, "row", None, "1 row"),
+        (0, "row", None, "0 rows"),
+        (2, "tree fit", None, "2 tree fits"),
+        (1, "class", None, "1 class"),
+        (3, "class", None, "3 classes"),
+        (2, "study", None, "2 studies"),
+        (2, "day", None, "2 days"),
+        (1, "leaf", "leaves", "1 leaf"),
+        (7, "leaf", "leaves", "7 leaves"),
+    ],
+)
+def test_counted_puts_the_noun_in_the_number_it_needs(n, noun, plural, expected):
+    from prunebench.vocabulary import counted
+
+    assert counted(n, noun, plural) == expected

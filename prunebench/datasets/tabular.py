@@ -38,6 +38,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..vocabulary import counted
 from ._registry import TASKS, Dataset, DatasetError
 
 __all__ = ["NA_MARKERS", "encoding_problem", "read_manifest", "read_table", "separator_problem"]
@@ -249,7 +250,8 @@ def read_table(
         line = int(np.flatnonzero(empty.to_numpy())[0]) + 2
         raise DatasetError(
             f"{where} {target!r} (the target) is empty at line {line}; "
-            f"{int(empty.sum())} rows have no target"
+            f"{counted(int(empty.sum()), 'row')} {'has' if empty.sum() == 1 else 'have'} "
+            "no target"
         )
     if task == "regression":
         y = _numeric(path, target, y_text)
