@@ -69,3 +69,14 @@ def mixed_folds(mixed_db):
 
     with ResultStore(mixed_db, readonly=True) as store:
         return load_folds(store)
+
+
+@pytest.fixture(autouse=True)
+def _registry_restored():
+    """Data sets a test registers (from its own manifests) do not outlive that test."""
+    from prunebench.datasets import _registry
+
+    saved = dict(_registry._REGISTRY)
+    yield
+    _registry._REGISTRY.clear()
+    _registry._REGISTRY.update(saved)

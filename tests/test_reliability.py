@@ -487,7 +487,32 @@ def test_degenerate_data_runs_to_the_end(name, tmp_path):
     assert summary.done == 4 and summary.failed == 0
 
 
-def test_a_trial_past_the_time_limit_is_stopped_and_recorded(tmp_path):
+def test_a_trial_past_the_time_limit_is_stopped_and_recorded(tmp_path, monkeypatch):
+    # The group's clock is replaced so the test does not depend on how busy the machine is:
+    # the first group (iris) never sees time pass; the second (digits) sees 5 s pass after
+    # its third tree fit, so it must stop before its fourth and be stored as failed.
+    from prunebench import evaluate
+
+    clocks = []
+    real_init = evaluate._Clock.__init__
+
+    def init(self, limit):
+        real_init(self, limit)
+        self.index, self.checks = len(clocks), 0
+        clocks.append(self)
+
+    def elapsed(self):
+        return 5.0 if self.index == 1 and self.checks > 3 else 0.0
+
+    real_check = evaluate._Clock.check
+
+    def check(self):
+        self.checks += 1
+        real_check(self)
+
+    monkeypatch.setattr(evaluate._Clock, "__init__", init)
+    monkeypatch.setattr(evaluate._Clock, "elapsed", elapsed)
+    monkeypatch.setattr(evaluate._Clock, "check", check)
     study = parse_study(
         'name = "limited"\nseed = 1\ntime_limit = 1.0\ndatasets = ["iris", "digits"]\n'
         "[outer]\nrepeats = 3\nfolds = 5\n[factors]\ninner_folds = [10]\n"
@@ -500,8 +525,9 @@ def test_a_trial_past_the_time_limit_is_stopped_and_recorded(tmp_path):
     )
     assert status == {"iris": "done", "digits": "failed"}
     error = conn.execute("SELECT error FROM trials WHERE status = 'failed'").fetchone()[0]
-    assert "time_limit of 1 s" in error
+    assert "time_limit of 1 s" in error and "(5.0 s)" in error
     assert summary.done == 1 and summary.failed == 1
+    assert clocks[1].checks == 4  # stopped at the check before its fourth fit
 
 
 def test_large_data_stays_within_memory(tmp_path):
