@@ -47,18 +47,22 @@ import pandas as pd
 from scipy import stats as sps
 
 from .exceptions import PrunebenchError, parameter_error
+from .stats import holm
+from .vocabulary import (
+    DEFAULT_METRIC,
+    default_margin,
+    factor_names,
+    family_of,
+    higher_is_better,
+    is_relative,
+    metric_names,
+)
 
 __all__ = [
     "EFFECT_COLUMNS",
-    "FACTORS",
-    "HIGHER_IS_BETTER",
     "INTERACTION_COLUMNS",
-    "MARGINS",
-    "RELATIVE_METRICS",
     "EffectsError",
-    "default_margin",
     "factor_effects",
-    "family_of",
     "interaction_effects",
     "combine",
     "loss_frame",
@@ -70,30 +74,12 @@ __all__ = [
 ]
 
 #: the factor columns of a configuration, in the order of the store
-FACTORS = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
-#: metrics where larger is better; their loss is ``1 - metric``
-HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2", "auc"}
-#: metrics whose loss is divided by the data set's mean unpruned loss (margin = share of it)
-RELATIVE_METRICS = {"mse", "mae"}
-#: default practical-equivalence margins in each metric's loss units (DESIGN.md "Decision"):
-#: 0.01 of error, Brier, AUC and accuracy; 0.02 of log loss; 1% of the unpruned loss for
-#: MSE and MAE (relative units, see :data:`RELATIVE_METRICS`); 0.01 of R^2.
-MARGINS = {
-    "error": 0.01,
-    "accuracy": 0.01,
-    "balanced_accuracy": 0.01,
-    "auc": 0.01,
-    "brier": 0.01,
-    "log_loss": 0.02,
-    "mse": 0.01,
-    "mae": 0.01,
-    "r2": 0.01,
-}
-_FAMILY_METRICS = {
-    "classification": {"error", "accuracy", "balanced_accuracy", "log_loss", "brier", "auc"},
-    "regression": {"mse", "mae", "r2"},
-}
-_DEFAULT_METRIC = {"classification": "error", "regression": "mse"}
+FACTORS = factor_names()
+
+
+def _family_metrics(family: str) -> set[str]:
+    return set(metric_names(family))
+
 
 #: columns of :func:`factor_effects`' table
 EFFECT_COLUMNS = [
@@ -144,18 +130,6 @@ class EffectsError(PrunebenchError):
     """The folds cannot answer the question asked."""
 
     exit_code = 2
-
-
-def family_of(task: str) -> str:
-    """``"regression"`` for regression tasks, ``"classification"`` for every other task."""
-    return "regression" if task == "regression" else "classification"
-
-
-def default_margin(metric: str) -> float:
-    """The default practical-equivalence margin of a metric (:data:`MARGINS`)."""
-    if metric not in MARGINS:
-        raise parameter_error("metric", "default_margin", f"one of {sorted(MARGINS)}", metric)
-    return MARGINS[metric]
 
 
 # ---- the random-effects combination ----------------------------------------------------
@@ -400,7 +374,7 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
 
     ``loss`` is the metric, ``1 - metric`` when larger is better, divided by the
     data set's mean unpruned loss (over all its unpruned trees) for
-    :data:`RELATIVE_METRICS`.
+    :func:`prunebench.vocabulary.is_relative` metrics.
 
     Parameters
     ----------
@@ -422,9 +396,9 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     if rows.empty:
         raise EffectsError(f"no {family} data set in the folds")
     loss = rows[metric].astype(float)
-    if metric in HIGHER_IS_BETTER:
+    if higher_is_better(metric):
         loss = 1.0 - loss
-    if metric in RELATIVE_METRICS:
+    if is_relative(metric):
         scale = loss[rows["arm"] == "unpruned"].groupby(rows["dataset"]).mean()
         loss = loss / rows["dataset"].map(scale)
     rows["loss"] = loss
@@ -527,8 +501,8 @@ def _family_metric(folds: pd.DataFrame, metric: str | None) -> dict[str, str]:
     families = sorted(set(folds["task"].map(family_of)))
     chosen = {}
     for family in families:
-        m = metric or _DEFAULT_METRIC[family]
-        if m in _FAMILY_METRICS[family]:
+        m = metric or DEFAULT_METRIC[family]
+        if m in _family_metrics(family):
             chosen[family] = m
     if not chosen:
         raise parameter_error("metric", "factor_effects", "a metric of the folds' tasks", metric)
@@ -579,7 +553,7 @@ def factor_effects(
         regression. Families without the metric are left out.
     margin : float, optional
         Practical-equivalence margin in the metric's loss units; default
-        :data:`MARGINS` of the metric.
+        :func:`prunebench.vocabulary.default_margin` of the metric.
     alpha : float, default=0.05
         Level of the tests; the intervals are ``1 - alpha``, the equivalence interval
         ``1 - 2 alpha``.
@@ -631,22 +605,11 @@ def factor_effects(
         table = pd.DataFrame(records)
         for name in (m, "n_leaves"):
             mask = table["metric"] == name
-            table.loc[mask, "p_holm"] = _holm(table.loc[mask, "p_value"].to_numpy())
+            table.loc[mask, "p_holm"] = holm(table.loc[mask, "p_value"].to_numpy())
         table["verdict"] = [_verdict(row, alpha) for row in table.itertuples(index=False)]
         out.append(table)
     result = pd.concat(out, ignore_index=True)
     return result.reindex(columns=EFFECT_COLUMNS)
-
-
-def _holm(p: np.ndarray) -> np.ndarray:
-    """Holm's step-down adjustment (NaN stays NaN)."""
-    p = np.asarray(p, dtype=float)
-    out = np.full(p.size, np.nan)
-    ok = np.flatnonzero(~np.isnan(p))
-    order = ok[np.argsort(p[ok], kind="stable")]
-    adjusted = np.maximum.accumulate((order.size - np.arange(order.size)) * p[order])
-    out[order] = np.minimum(adjusted, 1.0)
-    return out
 
 
 def _verdict(row, alpha: float) -> str:

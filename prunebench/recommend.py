@@ -34,18 +34,15 @@ import pandas as pd
 from scipy import stats as sps
 
 from .effects import (
-    _DEFAULT_METRIC,
-    _FAMILY_METRICS,
     FACTORS,
     EffectsError,
     _norm,
-    default_margin,
-    family_of,
     fill_zero_variances,
     losses,
     random_effects_many,
 )
 from .exceptions import parameter_error
+from .vocabulary import DEFAULT_METRIC, default_margin, family_of, metric_names
 
 __all__ = [
     "config_frame",
@@ -253,7 +250,7 @@ def recommend(
         The primary metric; default ``error`` / ``mse``.
     margin : float, optional
         Practical-equivalence margin in loss units; default
-        :data:`~prunebench.effects.MARGINS` of the metric.
+        :func:`~prunebench.vocabulary.default_margin` of the metric.
     alpha : float, default=0.05
         The acceptability bound is one-sided ``1 - alpha``.
     trials : dict, optional
@@ -277,8 +274,8 @@ def recommend(
         raise parameter_error("margin", "recommend", "a positive float", margin)
     out = []
     for family in sorted(set(folds["task"].map(family_of))):
-        m = metric or _DEFAULT_METRIC[family]
-        if m not in _FAMILY_METRICS[family]:
+        m = metric or DEFAULT_METRIC[family]
+        if m not in metric_names(family):
             continue
         fam_margin = default_margin(m) if margin is None else float(margin)
         frame = config_frame(folds, family, m)
