@@ -62,7 +62,9 @@ __all__ = [
     "EFFECT_COLUMNS",
     "INTERACTION_COLUMNS",
     "EffectsError",
+    "check_decision",
     "factor_effects",
+    "for_family",
     "interaction_effects",
     "combine",
     "loss_frame",
@@ -79,6 +81,21 @@ FACTORS = factor_names()
 
 def _family_metrics(family: str) -> set[str]:
     return set(metric_names(family))
+
+
+def for_family(value, family: str):
+    """``value[family]`` when ``value`` is a family -> value mapping, else ``value``."""
+    return value.get(family) if isinstance(value, dict) else value
+
+
+def check_decision(function: str, margin, alpha: float) -> None:
+    """Refuse an alpha outside (0, 0.5] or a margin (or a family's margin) <= 0."""
+    if isinstance(alpha, bool) or not isinstance(alpha, int | float) or not 0 < alpha <= 0.5:
+        raise parameter_error("alpha", function, "a float in (0, 0.5]", alpha)
+    margins = margin.values() if isinstance(margin, dict) else [margin]
+    for m in margins:
+        if m is not None and not (isinstance(m, int | float) and m > 0):
+            raise parameter_error("margin", function, "a positive float", margin)
 
 
 #: columns of :func:`factor_effects`' table
@@ -501,7 +518,7 @@ def _family_metric(folds: pd.DataFrame, metric: str | None) -> dict[str, str]:
     families = sorted(set(folds["task"].map(family_of)))
     chosen = {}
     for family in families:
-        m = metric or DEFAULT_METRIC[family]
+        m = for_family(metric, family) or DEFAULT_METRIC[family]
         if m in _family_metrics(family):
             chosen[family] = m
     if not chosen:
@@ -548,12 +565,12 @@ def factor_effects(
     levels : dict
         Factor -> levels in the study file's order (the first is the reference), or
         family -> such a mapping; ``None`` or ``"none"`` for an unlimited depth.
-    metric : str, optional
-        The primary metric; default ``error`` for classification, ``mse`` for
-        regression. Families without the metric are left out.
-    margin : float, optional
-        Practical-equivalence margin in the metric's loss units; default
-        :func:`prunebench.vocabulary.default_margin` of the metric.
+    metric : str or dict, optional
+        The primary metric, or family -> metric; default ``error`` for classification,
+        ``mse`` for regression. Families without the metric are left out.
+    margin : float or dict, optional
+        Practical-equivalence margin in the metric's loss units, or family -> margin;
+        default :func:`prunebench.vocabulary.default_margin` of the metric.
     alpha : float, default=0.05
         Level of the tests; the intervals are ``1 - alpha``, the equivalence interval
         ``1 - 2 alpha``.
@@ -566,15 +583,13 @@ def factor_effects(
         estimate and interval on the log scale, and ``ratio``/``ratio_low``/
         ``ratio_high`` = their exponentials).
     """
-    if not 0 < alpha < 0.5:
-        raise parameter_error("alpha", "factor_effects", "a float in (0, 0.5)", alpha)
-    if margin is not None and not margin > 0:
-        raise parameter_error("margin", "factor_effects", "a positive float", margin)
+    check_decision("factor_effects", margin, alpha)
     out = []
     for family, m in _family_metric(folds, metric).items():
         rows = loss_frame(folds, family, m, levels)
         info = _fold_info(rows)
-        fam_margin = default_margin(m) if margin is None else float(margin)
+        fam_margin = for_family(margin, family)
+        fam_margin = default_margin(m) if fam_margin is None else float(fam_margin)
         records = []
         for factor, code in _contrast_list(rows):
             level, reference = _level_names(rows, levels, family, factor, code)
@@ -653,7 +668,8 @@ def interaction_effects(
     for family, m in _family_metric(folds, metric).items():
         rows = loss_frame(folds, family, m, levels)
         info = _fold_info(rows)
-        fam_margin = default_margin(m) if margin is None else float(margin)
+        fam_margin = for_family(margin, family)
+        fam_margin = default_margin(m) if fam_margin is None else float(fam_margin)
         lv = normalise_levels(levels, family)
         pruned = rows[rows["arm"] == "pruned"]
         by_factors = [f for f in FACTORS if pruned[f"code_{f}"].nunique() >= 2]
