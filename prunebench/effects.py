@@ -62,7 +62,9 @@ __all__ = [
     "EFFECT_COLUMNS",
     "INTERACTION_COLUMNS",
     "EffectsError",
+    "JSON_COLUMNS",
     "check_decision",
+    "effect_records",
     "factor_effects",
     "for_family",
     "interaction_effects",
@@ -124,6 +126,26 @@ EFFECT_COLUMNS = [
     "ratio_high",
     "note",
 ]
+#: keys of one row of ``prunebench effects --json`` (size rows add the ratio keys)
+JSON_COLUMNS = [
+    "family",
+    "factor",
+    "level",
+    "reference",
+    "metric",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "pi_low",
+    "pi_high",
+    "tau2",
+    "i2",
+    "n_datasets",
+    "p_value",
+    "p_holm",
+    "verdict",
+]
+_RATIO_COLUMNS = ["ratio", "ratio_low", "ratio_high"]
 #: columns of :func:`interaction_effects`' table
 INTERACTION_COLUMNS = [
     "family",
@@ -625,6 +647,37 @@ def factor_effects(
         out.append(table)
     result = pd.concat(out, ignore_index=True)
     return result.reindex(columns=EFFECT_COLUMNS)
+
+
+def effect_records(table: pd.DataFrame) -> list[dict]:
+    """:func:`factor_effects`' table as the rows of ``prunebench effects --json``.
+
+    Each row has the keys of :data:`JSON_COLUMNS`; a tree-size row (``metric`` =
+    ``n_leaves``) also has ``ratio``, ``ratio_low`` and ``ratio_high``.  NaN becomes
+    None and numpy scalars Python ones, so integer levels stay integers.
+
+    Parameters
+    ----------
+    table : DataFrame
+        From :func:`factor_effects`.
+
+    Returns
+    -------
+    list of dict
+    """
+    out = []
+    for row in table.to_dict("records"):
+        keys = JSON_COLUMNS + (_RATIO_COLUMNS if row["metric"] == "n_leaves" else [])
+        record = {}
+        for key in keys:
+            value = row[key]
+            if hasattr(value, "item") and not isinstance(value, str):
+                value = value.item()
+            if isinstance(value, float) and np.isnan(value):
+                value = None
+            record[key] = value
+        out.append(record)
+    return out
 
 
 def _verdict(row, alpha: float) -> str:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import textwrap
 
 from .snippets import CAUTION, estimator_block, study_fragment
-from .vocabulary import REGRESSION, config_label, family_of, higher_is_better
+from .vocabulary import REGRESSION, config_label, family_of, higher_is_better, is_relative
 
 __all__ = [
     "compare_text",
@@ -186,9 +186,7 @@ def demo_text(dataset: str, data, model, cv: int) -> str:
     ]
     for row in model.cv_curve_.itertuples():
         mark = "  <- chosen" if row.alpha == model.ccp_alpha_ else ""
-        lines.append(
-            f"{row.alpha:12.6g} {row.n_leaves:7d} {row.mean:14.5g} {row.se:10.3g}{mark}"
-        )
+        lines.append(f"{row.alpha:12.6g} {row.n_leaves:7d} {row.mean:14.5g} {row.se:10.3g}{mark}")
     lines.append(
         f"rule {model.rule}: alpha = {model.ccp_alpha_:.6g}, "
         f"{model.get_n_leaves()} leaves (full tree {model.full_tree_.get_n_leaves()}), "
@@ -206,16 +204,20 @@ def _compare_rows(rows, spec: str) -> list[str]:
         verdict = {"pruned better": "pruned", "unpruned better": "unpr."}.get(r["verdict"], "-")
         ci = f"[{_fmt(r['ci_low'], '+' + spec)},{_fmt(r['ci_high'], '+' + spec)}]"
         lines.append(
-            f"{r['dataset'][:13]:<13} {config_label(r)[:27]:<27} "
+            f"{r['dataset'][:13]:<13} {config_label(r)[:23]:<23} "
             f"{_fmt(r['mean_pruned'], spec):>7} {_fmt(r['mean_unpruned'], spec):>7} "
             f"{_fmt(r['diff'], '+' + spec):>7} {ci:>15} {_fmt(r['p_value'], '4.2f'):>4} "
-            f"{verdict:<6} {_fmt(r['leaves_saved'], '5.1f'):>5}"
+            f"{_fmt(r['p_holm'], '4.2f'):>4} {verdict:<6} {_fmt(r['leaves_saved'], '5.1f'):>5}"
         )
     return lines
 
 
-def compare_text(table) -> str:
-    """Pruned against unpruned, per metric: :func:`prunebench.stats.comparison` as text."""
+def compare_text(table, alpha: float = 0.05) -> str:
+    """Pruned against unpruned, per metric: :func:`prunebench.stats.comparison` as text.
+
+    Both p-values are shown (the corrected t's and its Holm adjustment over every row);
+    the verdict follows the Holm-adjusted one.
+    """
     lines = []
     for m, rows in table.groupby("metric", sort=False):
         better = "higher" if higher_is_better(m) else "lower"
@@ -224,22 +226,26 @@ def compare_text(table) -> str:
             _wrap(
                 f"metric: {m} ({better} is better); diff = pruned - unpruned, mean over "
                 f"{int(rows['n_folds'].iloc[0])} outer folds; 95% CI of diff by corrected "
-                "resampled t; saved = leaves saved by pruning (mean per fold)"
+                "resampled t; p = its p-value, Holm = Holm-adjusted over every row; better = "
+                f"the arm favoured when Holm < {alpha:g}; saved = leaves saved by pruning (mean "
+                "per fold)"
             )
         )
         lines.append(
-            f"{'dataset':<13} {'configuration':<27} {'pruned':>7} {'unprun.':>7} "
-            f"{'diff':>7} {'95% CI of diff':>15} {'p':>4} {'better':<6} {'saved':>5}"
+            f"{'dataset':<13} {'configuration':<23} {'pruned':>7} {'unprun.':>7} "
+            f"{'diff':>7} {'95% CI of diff':>15} {'p':>4} {'Holm':>4} {'better':<6} {'saved':>5}"
         )
         lines += _compare_rows(rows, spec)
         naive = ((rows["naive_ci_high"] < 0) | (rows["naive_ci_low"] > 0)).sum()
         corrected = ((rows["ci_high"] < 0) | (rows["ci_low"] > 0)).sum()
         width = (rows["ci_high"] - rows["ci_low"]) / (rows["naive_ci_high"] - rows["naive_ci_low"])
+        held = (table.loc[rows.index, "p_holm"] < alpha).sum()
         lines.append(
             _wrap(
                 f"{len(rows)} rows: {corrected} differences significant at 5% with the "
-                f"corrected t, {naive} with the naive t (folds treated as independent), whose "
-                f"intervals are {width.median():.1f}x narrower (median)."
+                f"corrected t, {held} after Holm's adjustment over every row, {naive} with the "
+                f"naive t (folds treated as independent), whose intervals are "
+                f"{width.median():.1f}x narrower (median)."
             )
         )
         lines.append("")
@@ -284,13 +290,28 @@ def _rank_row(r) -> str:
     )
 
 
-def rank_text(results: list[dict], alpha: float, rope: float) -> str:
-    """:func:`prunebench.ranks.ranking`'s results as text, one block per task family."""
+def rank_text(results: list[dict], alpha: float) -> str:
+    """:func:`prunebench.ranks.ranking`'s results as text, one block per task family.
+
+    Says first, under the test line, when Friedman's test cannot separate the
+    configurations (p >= alpha, or no test with one data set).
+    """
     lines = []
     for res in results:
-        lines += _rank_heading(res, alpha)
+        heading = _rank_heading(res, alpha)
+        if not res.get("separated", True):
+            heading.insert(
+                2,
+                _wrap(
+                    f"Friedman's test cannot separate the configurations at {alpha:g}: their "
+                    "mean ranks may differ by chance alone, so read the ranks as an overview, "
+                    "not as an order (see 'prunebench effects' and 'prunebench recommend')"
+                ),
+            )
+        lines += heading
         lines += [_rank_row(r) for _, r in res["table"].iterrows()]
-        relative = " relative" if res["family"] == REGRESSION else ""
+        rope = res.get("rope", 0.01)
+        relative = " of the unpruned loss" if is_relative(res["metric"]) else ""
         lines.append(
             _wrap(
                 "ok = not significantly worse than the best (Nemenyi). W/T/L: datasets where "
@@ -311,13 +332,14 @@ def _level_text(value) -> str:
     return "none" if value is None else str(value)
 
 
-def _interval(lo, hi, spec: str = "+.3f") -> str:
-    return f"[{_fmt(lo, spec)}, {_fmt(hi, spec)}]"
+def _interval(lo, hi, spec: str = "+.3f", sep: str = ",") -> str:
+    return f"[{_fmt(lo, spec)}{sep}{_fmt(hi, spec)}]"
 
 
 def _ratio_text(row) -> str:
     """Tree size as a ratio of leaf counts: ``×0.63 [0.55, 0.72]``."""
-    return f"×{_fmt(row['ratio'], '.2f')} {_interval(row['ratio_low'], row['ratio_high'], '.2f')}"
+    bounds = _interval(row["ratio_low"], row["ratio_high"], ".2f", ", ")
+    return f"×{_fmt(row['ratio'], '.2f')} {bounds}"
 
 
 def _contrast(row) -> str:
@@ -351,21 +373,24 @@ def effects_text(table, alpha: float) -> str:
             )
         )
         lines.append(
-            f"{'contrast':<30} {'diff [95% CI]':<24} {'95% PI':<16} {'leaves [95% CI]':<19} verdict"
+            f"{'contrast':<23} {'diff [95% CI]':<22} {'95% PI':<15} {'leaves [95% CI]':<18} "
+            f"{'verdict':<10} size"
         )
         for _, r in primary.iterrows():
             key = (r["factor"], r["level"])
             s_row = size.loc[[key]].iloc[0] if key in size.index else None
             estimate = f"{_fmt(r['estimate'], '+.3f')} {_interval(r['ci_low'], r['ci_high'])}"
-            words = r["verdict"]
-            ratio = "-"
+            ratio, smaller = "-", "-"
             if s_row is not None:
                 ratio = _ratio_text(s_row)
-                if s_row["verdict"] != "undecided":
-                    words += f"; {s_row['verdict']} trees"
+                smaller = "-" if s_row["verdict"] == "undecided" else s_row["verdict"]
+            contrast = _contrast(r)
+            if len(contrast) > 23:  # a long name takes a line of its own
+                lines.append(contrast)
+                contrast = ""
             lines.append(
-                f"{_contrast(r)[:30]:<30} {estimate:<24} "
-                f"{_interval(r['pi_low'], r['pi_high']):<16} {ratio:<19} {words}"
+                f"{contrast:<23} {estimate:<22} {_interval(r['pi_low'], r['pi_high']):<15} "
+                f"{ratio:<18} {r['verdict']:<10} {smaller}"
             )
         notes = {n for n in rows["note"] if isinstance(n, str) and n}
         lines += [_wrap(f"note: {n}") for n in sorted(notes)]
@@ -374,7 +399,8 @@ def effects_text(table, alpha: float) -> str:
                 f"diff = {metric} loss of the level minus the reference's (negative = the level "
                 "is better; larger-is-better metrics as 1 - metric), a random-effects mean "
                 "across data sets with the Hartung-Knapp 95% interval; PI = 95% prediction "
-                "interval for a new data set; leaves = ratio of leaf counts. Verdict: "
+                "interval for a new data set; leaves = ratio of leaf counts (size: smaller or "
+                "larger when its Holm-adjusted p < alpha). Verdict: "
                 f"equivalent when the 90% interval lies inside ±{first['margin']:g}, else "
                 f"better or worse when the Holm-adjusted p < {alpha:g}, else undecided."
             )
@@ -471,15 +497,16 @@ def _stability_lines(rows: list[dict] | None) -> list[str]:
 
 def _decided_lines(r: dict) -> list[str]:
     m, margin = r["metric"], r["margin"]
+    rel = " (share of the unpruned loss)" if is_relative(m) else ""
     k = len(r["datasets"])
     lines = [
         _wrap(
-            f"recommended: {r['label']} — mean {m} {r['mean_loss']:.4g}, "
+            f"recommended: {r['label']} — mean {m}{rel} {r['mean_loss']:.4g}, "
             f"{r['mean_leaves']:.1f} leaves on average, on {k} data set{'s' if k != 1 else ''}",
             "   ",
         ),
         _wrap(
-            f"best by mean loss (B): {r['best']['label']} — mean {m} "
+            f"best by mean loss (B): {r['best']['label']} — mean {m}{rel} "
             f"{r['best']['mean_loss']:.4g}, {r['best']['mean_leaves']:.1f} leaves",
             "   ",
         ),
@@ -493,8 +520,8 @@ def _decided_lines(r: dict) -> list[str]:
     ]
     for a in r["acceptable"][:10]:
         lines.append(
-            f"   {a['label'][:34]:<34} {a['mean_loss']:>12.4g} {a['mean_leaves']:>7.1f} "
-            f"{a['upper_bound']:>+11.4f}"
+            f"   {config_label(a['config'])[:34]:<34} {a['mean_loss']:>12.4g} "
+            f"{a['mean_leaves']:>7.1f} {a['upper_bound']:>+11.4f}"
         )
     if len(r["acceptable"]) > 10:
         lines.append(f"   ... and {len(r['acceptable']) - 10} more (see --json)")
