@@ -296,9 +296,8 @@ def test_decision_settings_come_from_the_stored_study_and_flags_override(small_d
     assert {r["metric"] for r in json.loads(out.output)} == {"brier", "n_leaves"}
     rec = json.loads(CliRunner().invoke(main, ["recommend", "--db", str(path), "--json"]).output)
     assert rec[0]["metric"] == "brier" and rec[0]["margin"] == 0.03 and rec[0]["alpha"] == 0.1
-    flag = json.loads(
-        CliRunner().invoke(main, ["recommend", "--db", str(path), "--json", "--alpha", "0.2"]).output
-    )
+    args = ["recommend", "--db", str(path), "--json", "--alpha", "0.2"]
+    flag = json.loads(CliRunner().invoke(main, args).output)
     assert flag[0]["alpha"] == 0.2
     bad = CliRunner().invoke(main, ["recommend", "--db", str(path), "--alpha", "2"])
     assert bad.exit_code == 2 and "alpha" in bad.output and len(bad.output.splitlines()) == 1
@@ -363,7 +362,8 @@ def test_recommend_on_an_unfinished_study_says_counts_first_and_names_undecided(
     assert f"regression: 0 done, 0 failed, {counts[1]} pending" in " ".join(first)
     assert any(line.startswith("warning: the study is not complete") for line in first)
     assert "could not decide: regression (no finished trial)" in " ".join(first)
-    records = json.loads(CliRunner().invoke(main, ["recommend", "--db", str(path), "--json"]).output)
+    args = ["recommend", "--db", str(path), "--json"]
+    records = json.loads(CliRunner().invoke(main, args).output)
     by = {r["family"]: r for r in records}
     assert by["regression"]["decided"] is False and by["regression"]["config"] is None
     assert by["regression"]["trials"] == got["regression"]
