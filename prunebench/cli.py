@@ -279,29 +279,32 @@ def conduct(study_file, database, workers, retry_failed, cluster) -> None:
     click.echo(conduct_text(summary, conduct_table(summary.database, study.study_id)))
 
 
+_decision_alpha = click.option(
+    "--alpha",
+    type=float,
+    default=None,
+    help="Significance level in (0, 0.5]. Default: the study's [decision] alpha, else 0.05.",
+)
+_decision_margin = click.option(
+    "--margin",
+    type=float,
+    default=None,
+    help="Practical-equivalence margin in the metric's units (a share of the unpruned "
+    "loss for mse and mae). Default: the study's [decision] margin, else the metric's "
+    "(0.01 error, 0.02 log_loss, 1% of the unpruned mse).",
+)
+_decision_metric = click.option(
+    "--metric",
+    default=None,
+    help=f"{', '.join(metric_names(CLASSIFICATION))} (classification) or "
+    f"{', '.join(metric_names(REGRESSION))} (regression). "
+    f"Default: the study's [decision] metric, else {_per_family(DEFAULT_METRIC)}.",
+)
+
+
 def _decision_options(command):
     """``--metric``, ``--margin`` and ``--alpha``: each overrides the study's ``[decision]``."""
-    command = click.option(
-        "--alpha",
-        type=float,
-        default=None,
-        help="Significance level in (0, 0.5]. Default: the study's [decision] alpha, else 0.05.",
-    )(command)
-    command = click.option(
-        "--margin",
-        type=float,
-        default=None,
-        help="Practical-equivalence margin in the metric's units (a share of the unpruned "
-        "loss for mse and mae). Default: the study's [decision] margin, else the metric's "
-        "(0.01 error, 0.02 log_loss, 1% of the unpruned mse).",
-    )(command)
-    return click.option(
-        "--metric",
-        default=None,
-        help=f"{', '.join(metric_names(CLASSIFICATION))} (classification) or "
-        f"{', '.join(metric_names(REGRESSION))} (regression). "
-        f"Default: the study's [decision] metric, else {_per_family(DEFAULT_METRIC)}.",
-    )(command)
+    return _decision_metric(_decision_margin(_decision_alpha(command)))
 
 
 def _settings(database: str, study: str | None, metric, margin, alpha) -> dict:
@@ -312,10 +315,11 @@ def _settings(database: str, study: str | None, metric, margin, alpha) -> dict:
 
 @main.command()
 @_results_options
-@_decision_options
+@_decision_metric
+@_decision_alpha
 @_output_options
 @_reports_errors
-def compare(database, study, metric, margin, alpha, as_json, as_csv) -> None:
+def compare(database, study, metric, alpha, as_json, as_csv) -> None:
     """Pruned against unpruned per dataset and configuration, with corrected 95% CIs.
 
     The difference is pruned - unpruned on each outer fold; its interval and p-value come
@@ -324,10 +328,12 @@ def compare(database, study, metric, margin, alpha, as_json, as_csv) -> None:
     adjustment over every row; the verdict follows the Holm-adjusted p. The naive interval
     is in the JSON and CSV output.
     """
+    from .effects import check_decision
     from .stats import comparison
     from .text import compare_text
 
-    settings = _settings(database, study, metric, margin, alpha)
+    settings = _settings(database, study, metric, None, alpha)
+    check_decision("compare", None, settings["alpha"])
     table = comparison(_fold_rows(database, study), settings["metric"], settings["alpha"])
     if not _emit(table, as_json, as_csv):
         click.echo(compare_text(table, settings["alpha"]))
