@@ -639,12 +639,16 @@ def factor_effects(
                         ratio_high=float(np.exp(r["ci_high"])),
                     )
                 records.append(rec)
+        if not records:  # no level has a paired reference (e.g. a search's configurations)
+            continue
         table = pd.DataFrame(records)
         for name in (m, "n_leaves"):
             mask = table["metric"] == name
             table.loc[mask, "p_holm"] = holm(table.loc[mask, "p_value"].to_numpy())
         table["verdict"] = [_verdict(row, alpha) for row in table.itertuples(index=False)]
         out.append(table)
+    if not out:
+        return pd.DataFrame(columns=EFFECT_COLUMNS)
     result = pd.concat(out, ignore_index=True)
     return result.reindex(columns=EFFECT_COLUMNS)
 

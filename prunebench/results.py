@@ -516,6 +516,13 @@ class Results:
             settings = decision_settings(store, self.study, metric, margin, alpha)
             levels = study_levels(store, self.study)
             folds = load_folds(store, self.study)
+        for family, own in levels.items():
+            if not own:  # a search names no levels: the reference is the smallest level seen
+                mine = folds[folds["task"].map(family_of) == family]
+                levels[family] = {
+                    f: sorted(mine[f].dropna().unique().tolist()) + ([None] * mine[f].isna().any())
+                    for f in factor_names()
+                }
         compute = interaction_effects if interactions else factor_effects
         return compute(folds, levels, settings["metric"], settings["margin"], settings["alpha"])
 

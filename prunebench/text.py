@@ -355,6 +355,8 @@ def effects_text(table, alpha: float) -> str:
     prediction interval for a new data set, the effect on tree size as a ratio of leaf
     counts with its interval, and the verdict in words (tests at level ``alpha``).
     """
+    if table.empty:
+        return "no contrast to show: no level has trials paired with its reference level"
     lines = []
     for family, rows in table.groupby("family", sort=False):
         primary = rows[rows["metric"] != "n_leaves"]
