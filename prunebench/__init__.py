@@ -50,6 +50,8 @@ _LAZY = {
     "candidate_losses": "scoring",
     "leaf_counts": "scoring",
     "Configuration": "vocabulary",
+    "factor_effects": "effects",
+    "interaction_effects": "effects",
 }
 
 __all__ = [
@@ -78,6 +80,8 @@ __all__ = [
     "__version__",
     "candidate_losses",
     "cart_candidates",
+    "factor_effects",
+    "interaction_effects",
     "leaf_counts",
     "open_results",
     "parse_rule",

@@ -36,6 +36,7 @@ FLAGS = {
     "database": "--db",
     "metric": "--metric",
     "alpha": "--alpha",
+    "margin": "--margin",
     "fmt": "--format",
     "out": "--out",
 }
@@ -55,7 +56,16 @@ def _as_flags(message: str) -> str:
     switches = r"\b(" + "|".join(SWITCHES) + r")=True\b"
     message = re.sub(switches, lambda m: SWITCHES[m.group(1)], message)
     pattern = r"\b(" + "|".join(FLAGS) + r")=(?=\.\.\.|\S)"
-    return re.sub(pattern, lambda m: FLAGS[m.group(1)] + " ", message)
+    message = re.sub(pattern, lambda m: FLAGS[m.group(1)] + " ", message)
+    # the one parameter-error template names a keyword: from here it is an option
+    template = r"^The '(" + "|".join(FLAGS) + r")' parameter of (\w+)"
+
+    def as_option(m: re.Match) -> str:
+        if m.group(2) not in main.commands:  # a library function's own parameter
+            return m.group(0)
+        return f"The '{FLAGS[m.group(1)]}' option of prunebench {m.group(2)}"
+
+    return re.sub(template, as_option, message)
 
 
 def _reports_errors(command):
@@ -96,14 +106,6 @@ _alpha_option = click.option("--alpha", default=0.05, show_default=True, help="S
 _json_option = click.option("--json", "as_json", is_flag=True, help="Print JSON.")
 _csv_option = click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 _study_file_argument = click.argument("study_file", type=click.Path(dir_okay=False))
-
-
-def _significance(alpha: float, command: str) -> None:
-    """A significance level lies in (0, 0.5]: above it a test would reject more often than not."""
-    from .exceptions import parameter_error
-
-    if not 0 < alpha <= 0.5:
-        raise parameter_error("--alpha", f"prunebench {command}", "in (0, 0.5]", alpha)
 
 
 def _reads_database(command):
@@ -178,7 +180,7 @@ def main() -> None:
     Write a study file that sweeps the criterion, depth limit, leaf size, inner folds,
     alpha rule and pruning risk over datasets; 'check' it, 'conduct' it (nested,
     repeated CV; every trial kept in SQLite; resumable), then read the evidence with
-    'compare', 'rank', 'recommend', 'figures' and 'report', or query it with 'sql',
+    'effects', 'recommend', 'compare', 'rank', 'figures' and 'report', or query it with 'sql',
     'export' and 'progress'. 'datasets' lists the data; 'demo' fits one pruned tree.
     """
 
@@ -345,74 +347,171 @@ def conduct(study_file, database, workers, retry_failed, cluster) -> None:
     click.echo(conduct_text(summary, conduct_table(summary.database, study.study_id)))
 
 
+_decision_alpha = click.option(
+    "--alpha",
+    type=float,
+    default=None,
+    help="Significance level in (0, 0.5]. Default: the study's [decision] alpha, else 0.05.",
+)
+_decision_margin = click.option(
+    "--margin",
+    type=float,
+    default=None,
+    help="Practical-equivalence margin in the metric's units (a share of the unpruned "
+    "loss for mse and mae). Default: the study's [decision] margin, else the metric's "
+    "(0.01 error, 0.02 log_loss, 1% of the unpruned mse).",
+)
+_decision_metric = click.option(
+    "--metric",
+    default=None,
+    help=f"{', '.join(metric_names(CLASSIFICATION))} (classification) or "
+    f"{', '.join(metric_names(REGRESSION))} (regression). "
+    f"Default: the study's [decision] metric, else {_per_family(DEFAULT_METRIC)}.",
+)
+
+
+def _decision_options(command):
+    """``--metric``, ``--margin`` and ``--alpha``: each overrides the study's ``[decision]``."""
+    return _decision_metric(_decision_margin(_decision_alpha(command)))
+
+
+def _settings(database: str, study: str | None, metric, margin, alpha) -> dict:
+    from .results import open_results
+
+    return open_results(database, study).decision(metric, margin, alpha)
+
+
 @main.command()
 @_results_options
-@_metric_option
+@_decision_metric
+@_decision_alpha
 @_output_options
 @_reports_errors
-def compare(database, study, metric, as_json, as_csv) -> None:
+def compare(database, study, metric, alpha, as_json, as_csv) -> None:
     """Pruned against unpruned per dataset and configuration, with corrected 95% CIs.
 
     The difference is pruned - unpruned on each outer fold; its interval and p-value come
     from the corrected resampled t (Nadeau & Bengio 2003), which allows for the overlap of
-    training sets in repeated CV. The naive interval and Holm-adjusted p-values are in the
-    JSON and CSV output.
+    training sets in repeated CV. Both p-values are shown, the corrected t's and its Holm
+    adjustment over every row; the verdict follows the Holm-adjusted p. The naive interval
+    is in the JSON and CSV output.
     """
+    from .effects import check_decision
     from .stats import comparison
     from .text import compare_text
 
-    table = comparison(_fold_rows(database, study), metric)
+    settings = _settings(database, study, metric, None, alpha)
+    check_decision("compare", None, settings["alpha"])
+    table = comparison(_fold_rows(database, study), settings["metric"], settings["alpha"])
     if not _emit(table, as_json, as_csv):
-        click.echo(compare_text(table))
+        click.echo(compare_text(table, settings["alpha"]))
 
 
 @main.command()
 @_results_options
-@click.option("--metric", default=None, help="As for compare. Default: error / mse.")
-@_alpha_option
+@_decision_options
 @_output_options
 @_reports_errors
-def rank(database, study, metric, alpha, as_json, as_csv) -> None:
-    """Rank configurations across datasets: mean ranks, Friedman test, critical difference.
+def rank(database, study, metric, margin, alpha, as_json, as_csv) -> None:
+    """Rank configurations across datasets: an overview by mean ranks and the Friedman test.
 
     Each configuration's pruned tree is ranked on every dataset (1 = best); each distinct
     unpruned tree takes part as a configuration of its own. Configurations whose mean rank
-    is within Nemenyi's critical difference of the best are not significantly worse.
+    is within Nemenyi's critical difference of the best are not significantly worse; the
+    output says when the Friedman test cannot separate the configurations. The Bayesian
+    signed-rank test uses the study's margin as its region of practical equivalence.
+    Mean ranks depend on the pool of configurations: the default comes from 'recommend'.
     """
-    from .ranks import ROPE, ranking, ranking_frame
+    from .effects import check_decision
+    from .ranks import ranking, ranking_frame
     from .text import rank_text
 
-    _significance(alpha, "rank")
-    results = ranking(_fold_rows(database, study), metric, alpha)
+    settings = _settings(database, study, metric, margin, alpha)
+    check_decision("rank", settings["margin"], settings["alpha"])
+    results = ranking(
+        _fold_rows(database, study), settings["metric"], settings["alpha"], settings["margin"]
+    )
     if as_json or as_csv:
         _emit(ranking_frame(results), as_json, as_csv)
     else:
-        click.echo(rank_text(results, alpha, ROPE))
+        click.echo(rank_text(results, settings["alpha"]))
 
 
 @main.command()
 @_results_options
-@_alpha_option
-@_json_option
+@_decision_options
+@_output_options
+@click.option(
+    "--interactions",
+    is_flag=True,
+    help="Show each contrast within each level of another factor instead, flagged where "
+    "the effects differ by more than the margin.",
+)
 @_reports_errors
-def recommend(database, study, alpha, as_json) -> None:
-    """Propose a default configuration for a team standard, with its evidence.
+def effects(database, study, metric, margin, alpha, as_json, as_csv, interactions) -> None:
+    """Each factor's effect on the primary metric and on tree size, across datasets.
 
-    Among the configurations not significantly worse than the best (Nemenyi), the best
-    mean rank wins and ties go to smaller trees. Shows its regret on each dataset (its
-    loss minus the best configuration's, with a corrected CI) and prints the choice as an
-    estimator and a study-file fragment.
+    Per task family, factor and level against the reference level (the first listed in the
+    study file), and for pruning itself (pruned against the unpruned tree): the paired
+    per-fold contrast, per dataset its Nadeau-Bengio variance, across datasets a
+    random-effects mean (DerSimonian-Laird) with the Hartung-Knapp 95% interval and the 95%
+    prediction interval for a new dataset; tree size as a ratio of leaf counts. Verdict:
+    equivalent when the 90% interval lies inside the margin, else better or worse when the
+    Holm-adjusted p is below alpha, else undecided.
     """
     import json
 
-    from .ranks import recommendation
+    from .effects import effect_records
+    from .results import open_results
+    from .text import effects_text, interactions_text
+
+    results = open_results(database, study)
+    settings = results.decision(metric, margin, alpha)
+    table = results.effects(metric, margin, alpha, interactions=interactions)
+    if as_json and as_csv:
+        raise click.UsageError("give --json or --csv, not both")
+    if as_json:
+        records = table.to_dict("records") if interactions else effect_records(table)
+        click.echo(json.dumps(_json_ready(records), indent=2))
+    elif as_csv:
+        click.echo(table.to_csv(index=False), nl=False)
+    elif interactions:
+        click.echo(interactions_text(table))
+    else:
+        click.echo(effects_text(table, settings["alpha"]))
+
+
+def _json_ready(records):
+    from .snippets import plain_json
+
+    return plain_json(records)
+
+
+@main.command()
+@_results_options
+@_decision_options
+@_json_option
+@_reports_errors
+def recommend(database, study, metric, margin, alpha, as_json) -> None:
+    """Propose a default configuration per task family, and say how well the rule does.
+
+    First the trials done, failed and pending per family and every family that could not
+    be decided. Then B, the configuration with the lowest mean loss over datasets; the
+    acceptable set, whose one-sided upper bound of loss - B's (Hartung-Knapp, across
+    datasets) lies below the margin; and the recommendation, the acceptable configuration
+    with the fewest leaves. The rule is judged by leaving each dataset out once (held-out
+    regret, share over the margin). Stability of the chosen trees, the estimator and a
+    study-file fragment follow.
+    """
+    import json
+
+    from .results import open_results
     from .snippets import recommendation_records
     from .text import recommend_text
 
-    _significance(alpha, "recommend")
-    recs = recommendation(_fold_rows(database, study), alpha)
+    recs = open_results(database, study).recommendation(metric, margin, alpha)
     if as_json:
-        click.echo(json.dumps(recommendation_records(recs), indent=2, default=str))
+        click.echo(json.dumps(recommendation_records(recs), indent=2))
     else:
         click.echo(recommend_text(recs))
 

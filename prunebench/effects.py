@@ -47,18 +47,26 @@ import pandas as pd
 from scipy import stats as sps
 
 from .exceptions import PrunebenchError, parameter_error
+from .stats import holm
+from .vocabulary import (
+    DEFAULT_METRIC,
+    default_margin,
+    factor_names,
+    family_of,
+    higher_is_better,
+    is_relative,
+    metric_names,
+)
 
 __all__ = [
     "EFFECT_COLUMNS",
-    "FACTORS",
-    "HIGHER_IS_BETTER",
     "INTERACTION_COLUMNS",
-    "MARGINS",
-    "RELATIVE_METRICS",
     "EffectsError",
-    "default_margin",
+    "JSON_COLUMNS",
+    "check_decision",
+    "effect_records",
     "factor_effects",
-    "family_of",
+    "for_family",
     "interaction_effects",
     "combine",
     "loss_frame",
@@ -70,30 +78,27 @@ __all__ = [
 ]
 
 #: the factor columns of a configuration, in the order of the store
-FACTORS = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
-#: metrics where larger is better; their loss is ``1 - metric``
-HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2", "auc"}
-#: metrics whose loss is divided by the data set's mean unpruned loss (margin = share of it)
-RELATIVE_METRICS = {"mse", "mae"}
-#: default practical-equivalence margins in each metric's loss units (DESIGN.md "Decision"):
-#: 0.01 of error, Brier, AUC and accuracy; 0.02 of log loss; 1% of the unpruned loss for
-#: MSE and MAE (relative units, see :data:`RELATIVE_METRICS`); 0.01 of R^2.
-MARGINS = {
-    "error": 0.01,
-    "accuracy": 0.01,
-    "balanced_accuracy": 0.01,
-    "auc": 0.01,
-    "brier": 0.01,
-    "log_loss": 0.02,
-    "mse": 0.01,
-    "mae": 0.01,
-    "r2": 0.01,
-}
-_FAMILY_METRICS = {
-    "classification": {"error", "accuracy", "balanced_accuracy", "log_loss", "brier", "auc"},
-    "regression": {"mse", "mae", "r2"},
-}
-_DEFAULT_METRIC = {"classification": "error", "regression": "mse"}
+FACTORS = factor_names()
+
+
+def _family_metrics(family: str) -> set[str]:
+    return set(metric_names(family))
+
+
+def for_family(value, family: str):
+    """``value[family]`` when ``value`` is a family -> value mapping, else ``value``."""
+    return value.get(family) if isinstance(value, dict) else value
+
+
+def check_decision(function: str, margin, alpha: float) -> None:
+    """Refuse an alpha outside (0, 0.5] or a margin (or a family's margin) <= 0."""
+    if isinstance(alpha, bool) or not isinstance(alpha, int | float) or not 0 < alpha <= 0.5:
+        raise parameter_error("alpha", function, "a float in (0, 0.5]", alpha)
+    margins = margin.values() if isinstance(margin, dict) else [margin]
+    for m in margins:
+        if m is not None and not (isinstance(m, int | float) and m > 0):
+            raise parameter_error("margin", function, "a positive float", margin)
+
 
 #: columns of :func:`factor_effects`' table
 EFFECT_COLUMNS = [
@@ -121,6 +126,26 @@ EFFECT_COLUMNS = [
     "ratio_high",
     "note",
 ]
+#: keys of one row of ``prunebench effects --json`` (size rows add the ratio keys)
+JSON_COLUMNS = [
+    "family",
+    "factor",
+    "level",
+    "reference",
+    "metric",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "pi_low",
+    "pi_high",
+    "tau2",
+    "i2",
+    "n_datasets",
+    "p_value",
+    "p_holm",
+    "verdict",
+]
+_RATIO_COLUMNS = ["ratio", "ratio_low", "ratio_high"]
 #: columns of :func:`interaction_effects`' table
 INTERACTION_COLUMNS = [
     "family",
@@ -144,18 +169,6 @@ class EffectsError(PrunebenchError):
     """The folds cannot answer the question asked."""
 
     exit_code = 2
-
-
-def family_of(task: str) -> str:
-    """``"regression"`` for regression tasks, ``"classification"`` for every other task."""
-    return "regression" if task == "regression" else "classification"
-
-
-def default_margin(metric: str) -> float:
-    """The default practical-equivalence margin of a metric (:data:`MARGINS`)."""
-    if metric not in MARGINS:
-        raise parameter_error("metric", "default_margin", f"one of {sorted(MARGINS)}", metric)
-    return MARGINS[metric]
 
 
 # ---- the random-effects combination ----------------------------------------------------
@@ -400,7 +413,7 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
 
     ``loss`` is the metric, ``1 - metric`` when larger is better, divided by the
     data set's mean unpruned loss (over all its unpruned trees) for
-    :data:`RELATIVE_METRICS`.
+    :func:`prunebench.vocabulary.is_relative` metrics.
 
     Parameters
     ----------
@@ -422,9 +435,9 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     if rows.empty:
         raise EffectsError(f"no {family} data set in the folds")
     loss = rows[metric].astype(float)
-    if metric in HIGHER_IS_BETTER:
+    if higher_is_better(metric):
         loss = 1.0 - loss
-    if metric in RELATIVE_METRICS:
+    if is_relative(metric):
         scale = loss[rows["arm"] == "unpruned"].groupby(rows["dataset"]).mean()
         loss = loss / rows["dataset"].map(scale)
     rows["loss"] = loss
@@ -527,8 +540,8 @@ def _family_metric(folds: pd.DataFrame, metric: str | None) -> dict[str, str]:
     families = sorted(set(folds["task"].map(family_of)))
     chosen = {}
     for family in families:
-        m = metric or _DEFAULT_METRIC[family]
-        if m in _FAMILY_METRICS[family]:
+        m = for_family(metric, family) or DEFAULT_METRIC[family]
+        if m in _family_metrics(family):
             chosen[family] = m
     if not chosen:
         raise parameter_error("metric", "factor_effects", "a metric of the folds' tasks", metric)
@@ -574,12 +587,12 @@ def factor_effects(
     levels : dict
         Factor -> levels in the study file's order (the first is the reference), or
         family -> such a mapping; ``None`` or ``"none"`` for an unlimited depth.
-    metric : str, optional
-        The primary metric; default ``error`` for classification, ``mse`` for
-        regression. Families without the metric are left out.
-    margin : float, optional
-        Practical-equivalence margin in the metric's loss units; default
-        :data:`MARGINS` of the metric.
+    metric : str or dict, optional
+        The primary metric, or family -> metric; default ``error`` for classification,
+        ``mse`` for regression. Families without the metric are left out.
+    margin : float or dict, optional
+        Practical-equivalence margin in the metric's loss units, or family -> margin;
+        default :func:`prunebench.vocabulary.default_margin` of the metric.
     alpha : float, default=0.05
         Level of the tests; the intervals are ``1 - alpha``, the equivalence interval
         ``1 - 2 alpha``.
@@ -592,15 +605,13 @@ def factor_effects(
         estimate and interval on the log scale, and ``ratio``/``ratio_low``/
         ``ratio_high`` = their exponentials).
     """
-    if not 0 < alpha < 0.5:
-        raise parameter_error("alpha", "factor_effects", "a float in (0, 0.5)", alpha)
-    if margin is not None and not margin > 0:
-        raise parameter_error("margin", "factor_effects", "a positive float", margin)
+    check_decision("factor_effects", margin, alpha)
     out = []
     for family, m in _family_metric(folds, metric).items():
         rows = loss_frame(folds, family, m, levels)
         info = _fold_info(rows)
-        fam_margin = default_margin(m) if margin is None else float(margin)
+        fam_margin = for_family(margin, family)
+        fam_margin = default_margin(m) if fam_margin is None else float(fam_margin)
         records = []
         for factor, code in _contrast_list(rows):
             level, reference = _level_names(rows, levels, family, factor, code)
@@ -628,24 +639,48 @@ def factor_effects(
                         ratio_high=float(np.exp(r["ci_high"])),
                     )
                 records.append(rec)
+        if not records:  # no level has a paired reference (e.g. a search's configurations)
+            continue
         table = pd.DataFrame(records)
         for name in (m, "n_leaves"):
             mask = table["metric"] == name
-            table.loc[mask, "p_holm"] = _holm(table.loc[mask, "p_value"].to_numpy())
+            table.loc[mask, "p_holm"] = holm(table.loc[mask, "p_value"].to_numpy())
         table["verdict"] = [_verdict(row, alpha) for row in table.itertuples(index=False)]
         out.append(table)
+    if not out:
+        return pd.DataFrame(columns=EFFECT_COLUMNS)
     result = pd.concat(out, ignore_index=True)
     return result.reindex(columns=EFFECT_COLUMNS)
 
 
-def _holm(p: np.ndarray) -> np.ndarray:
-    """Holm's step-down adjustment (NaN stays NaN)."""
-    p = np.asarray(p, dtype=float)
-    out = np.full(p.size, np.nan)
-    ok = np.flatnonzero(~np.isnan(p))
-    order = ok[np.argsort(p[ok], kind="stable")]
-    adjusted = np.maximum.accumulate((order.size - np.arange(order.size)) * p[order])
-    out[order] = np.minimum(adjusted, 1.0)
+def effect_records(table: pd.DataFrame) -> list[dict]:
+    """:func:`factor_effects`' table as the rows of ``prunebench effects --json``.
+
+    Each row has the keys of :data:`JSON_COLUMNS`; a tree-size row (``metric`` =
+    ``n_leaves``) also has ``ratio``, ``ratio_low`` and ``ratio_high``.  NaN becomes
+    None and numpy scalars Python ones, so integer levels stay integers.
+
+    Parameters
+    ----------
+    table : DataFrame
+        From :func:`factor_effects`.
+
+    Returns
+    -------
+    list of dict
+    """
+    out = []
+    for row in table.to_dict("records"):
+        keys = JSON_COLUMNS + (_RATIO_COLUMNS if row["metric"] == "n_leaves" else [])
+        record = {}
+        for key in keys:
+            value = row[key]
+            if hasattr(value, "item") and not isinstance(value, str):
+                value = value.item()
+            if isinstance(value, float) and np.isnan(value):
+                value = None
+            record[key] = value
+        out.append(record)
     return out
 
 
@@ -690,7 +725,8 @@ def interaction_effects(
     for family, m in _family_metric(folds, metric).items():
         rows = loss_frame(folds, family, m, levels)
         info = _fold_info(rows)
-        fam_margin = default_margin(m) if margin is None else float(margin)
+        fam_margin = for_family(margin, family)
+        fam_margin = default_margin(m) if fam_margin is None else float(fam_margin)
         lv = normalise_levels(levels, family)
         pruned = rows[rows["arm"] == "pruned"]
         by_factors = [f for f in FACTORS if pruned[f"code_{f}"].nunique() >= 2]

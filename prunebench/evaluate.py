@@ -236,6 +236,20 @@ def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock
     return _OuterFit(full, selection, fit_full, time.perf_counter() - t0)
 
 
+def tree_features(model) -> dict:
+    """The root split's feature index (None for a single leaf) and the features a tree uses.
+
+    ``features_used`` is the sorted feature indices of the tree's splits, comma-separated
+    ("" for a single leaf): what the stability figures compare across outer folds.
+    """
+    feature = model.tree_.feature
+    used = sorted({int(f) for f in feature if f >= 0})
+    return {
+        "root_feature": int(feature[0]) if model.tree_.node_count > 1 else None,
+        "features_used": ",".join(map(str, used)),
+    }
+
+
 def _arm_row(trial_id: str, common: dict, arm: str, model, scores: dict, alpha, seconds) -> dict:
     return {
         "trial_id": trial_id,
@@ -246,6 +260,7 @@ def _arm_row(trial_id: str, common: dict, arm: str, model, scores: dict, alpha, 
         "depth": int(model.get_depth()),
         "alpha": alpha,
         "fit_seconds": seconds,
+        **tree_features(model),
     }
 
 

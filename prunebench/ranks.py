@@ -7,7 +7,15 @@ rule ``"unpruned"``, so "do not prune" can win.  Across data sets (Demšar 2006)
 mean ranks, the Friedman test with the Iman-Davenport F and the Nemenyi critical
 difference; against its unpruned tree, each pruned configuration gets Wilcoxon's
 signed-rank p and a Bayesian signed-rank test with a region of practical
-equivalence (Benavoli et al. 2017).
+equivalence (Benavoli et al. 2017) of the metric's margin
+(:func:`prunebench.vocabulary.default_margin`, or the study's ``[decision]``
+margin).  For metrics whose margin is relative (MSE, MAE) both tests use each data
+set's difference divided by its unpruned loss, so data sets with large targets do
+not dominate; no difference is ever divided by an R^2.
+
+The ranking is an overview: its mean-rank tests depend on which other
+configurations are in the pool (Benavoli, Corani & Mangili 2016), so the
+recommended default comes from :mod:`prunebench.recommend`.
 
 Frames in, frames out: the folds come from :func:`prunebench.results.load_folds`.
 """
@@ -26,19 +34,16 @@ from .stats import (
     metric_rows,
 )
 from .vocabulary import (
-    REGRESSION,
     Configuration,
+    default_margin,
     factor_names,
     family_of,
     growth_factors,
     higher_is_better,
+    is_relative,
 )
 
-__all__ = ["ROPE", "ranking", "ranking_frame", "recommendation"]
-
-#: region of practical equivalence of the Bayesian signed-rank test: 0.01 of error
-#: (one percentage point) for classification, 1% of the unpruned loss for regression
-ROPE = 0.01
+__all__ = ["ranking", "ranking_frame", "recommendation", "separates"]
 
 
 def _config_scores(folds: pd.DataFrame, metric: str) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -67,16 +72,25 @@ def _config_scores(folds: pd.DataFrame, metric: str) -> tuple[pd.DataFrame, pd.D
     return tables[0], tables[1]
 
 
-def ranking(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05) -> list[dict]:
+def ranking(
+    folds: pd.DataFrame,
+    metric: str | dict | None = None,
+    alpha: float = 0.05,
+    margin: float | dict | None = None,
+) -> list[dict]:
     """Configurations ranked across data sets, one result per task family.
 
     Parameters
     ----------
     folds : DataFrame
         From :func:`prunebench.results.load_folds`.
-    metric : str, optional
-        Default: the family's default metric (``error`` / ``mse``).
+    metric : str or dict, optional
+        Default: the family's default metric (``error`` / ``mse``); family -> metric
+        gives each family its own.
     alpha : float, default=0.05
+    margin : float or dict, optional
+        Region of practical equivalence of the Bayesian signed-rank test (family ->
+        margin, or one for all); default the metric's margin in the vocabulary.
 
     Returns
     -------
@@ -87,20 +101,42 @@ def ranking(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.05)
         against the best by mean, mean metric, mean leaves, ``not_worse`` than the best by
         the critical difference, and for pruned configurations Wilcoxon's p and the
         Bayesian signed-rank probabilities against their unpruned tree), the
-        ``friedman`` and ``cd`` results, ``alpha``, ``best``, and the ``means`` and
-        ``leaves`` tables (datasets x configurations).
+        ``friedman`` and ``cd`` results, ``alpha``, ``rope`` (the margin used),
+        ``separated`` (:func:`separates`), ``best``, and the ``means`` and ``leaves``
+        tables (datasets x configurations).
     """
-    folds, tasks = metric_rows(folds, metric)
+    from .effects import for_family
+
+    if isinstance(metric, dict):
+        folds = folds[folds["task"].map(family_of).isin(metric)]
+        parts = [
+            metric_rows(folds[folds["task"].map(family_of) == f], m) for f, m in metric.items()
+        ]
+        folds = pd.concat([p[0] for p in parts])
+        tasks = {t: m for p in parts for t, m in p[1].items()}
+    else:
+        folds, tasks = metric_rows(folds, metric)
     families = {task: family_of(task) for task in tasks}
     results = []
     for family in sorted(set(families.values())):
         mine = folds[folds["task"].map(families) == family]
         chosen = {tasks[t] for t in tasks if families[t] == family}.pop()
-        results.append(_rank_family(mine, family, chosen, alpha))
+        rope = for_family(margin, family)
+        rope = default_margin(chosen) if rope is None else float(rope)
+        results.append(_rank_family(mine, family, chosen, alpha, rope))
     return results
 
 
-def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float) -> dict:
+def separates(friedman: dict | None, alpha: float) -> bool:
+    """Whether Friedman's test separates the configurations at ``alpha`` (p < alpha).
+
+    False without a test (one data set or one configuration) and when every data set
+    ties every configuration (NaN statistic).
+    """
+    return bool(friedman and np.isfinite(friedman["p_chi2"]) and friedman["p_chi2"] < alpha)
+
+
+def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float, rope: float) -> dict:
     """The ranking of one task family's folds on one metric (see :func:`ranking`)."""
     means, leaves = _config_scores(folds, metric)
     complete = means.dropna(axis=1)
@@ -132,7 +168,7 @@ def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float) ->
                 "mean_metric": float(means.iloc[:, j].mean()),
                 "mean_leaves": float(leaves.iloc[:, j].mean()),
                 "not_worse": bool(np.isnan(cd) or mean_ranks[j] - mean_ranks[best] <= cd),
-                **_against_unpruned(config, means, sign, family),
+                **_against_unpruned(config, means, sign, metric, rope),
             }
         )
     table = pd.DataFrame(rows).sort_values(["mean_rank", "mean_leaves"]).reset_index(drop=True)
@@ -144,6 +180,8 @@ def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float) ->
         "friedman": fried,
         "cd": cd,
         "alpha": alpha,
+        "rope": rope,
+        "separated": separates(fried, alpha),
         "best": means.columns[best],
         "means": means,
         "leaves": leaves,
@@ -151,18 +189,23 @@ def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float) ->
 
 
 def _against_unpruned(
-    config: Configuration, means: pd.DataFrame, sign: float, family: str
+    config: Configuration, means: pd.DataFrame, sign: float, metric: str, rope: float
 ) -> dict:
-    """Wilcoxon's p and the Bayesian signed-rank probabilities of pruning, across data sets."""
+    """Wilcoxon's p and the Bayesian signed-rank probabilities of pruning, across data sets.
+
+    For a relative metric (MSE, MAE) the gain on each data set is divided by that data
+    set's unpruned loss (a positive loss), for both tests; other metrics' gains are raw
+    differences, so nothing is divided by an R^2 near zero.
+    """
     baseline = config.unpruned()
     if not config.pruned or baseline not in means.columns or len(means) < 2:
         return {}
     gains = sign * (means[baseline] - means[config]).to_numpy()
-    wilcoxon_p = _wilcoxon(gains)
-    if family == REGRESSION:
+    if is_relative(metric):
         # losses of regression sets differ in scale: compare relative gains
-        gains = gains / np.abs(means[baseline].to_numpy())
-    bayes = bayesian_signed_rank(gains, rope=ROPE)
+        gains = gains / means[baseline].to_numpy()
+    wilcoxon_p = _wilcoxon(gains)
+    bayes = bayesian_signed_rank(gains, rope=rope)
     return {
         "wilcoxon_p": wilcoxon_p,
         "p_pruned_better": bayes["p_first_better"],
@@ -263,49 +306,62 @@ def recommendation(folds: pd.DataFrame, alpha: float = 0.05) -> list[dict]:
 def _regrets(
     folds: pd.DataFrame, ranked: dict, config: Configuration, alpha: float
 ) -> pd.DataFrame:
-    """Per data set: the configuration's loss minus the best one's there, with a corrected CI."""
-    m, means = ranked["metric"], ranked["means"]
+    """Per data set: the configuration's loss minus the best one's there, with a corrected CI.
+
+    The best is not picked on the folds it is scored on: the outer folds, sorted by
+    (repeat, fold), are split into even and odd positions; the best on the even ones is
+    scored on the odd ones and the other way round, and the corrected t runs over the
+    resulting per-fold differences.
+    """
+    m = ranked["metric"]
     sign = -1.0 if higher_is_better(m) else 1.0
+    table = _fold_losses(folds, m, list(ranked["means"].columns))
     regrets = []
     for dataset in ranked["datasets"]:
-        best_config = (sign * means.loc[dataset]).idxmin()
-        paired = _config_folds(folds, dataset, config, m).merge(
-            _config_folds(folds, dataset, best_config, m),
-            left_index=True,
-            right_index=True,
-            suffixes=("_c", "_b"),
-        )
-        t = corrected_ttest(
-            sign * (paired[f"{m}_c"] - paired[f"{m}_b"]),
-            paired["n_train_c"],
-            paired["n_test_c"],
-            alpha,
-        )
+        own = table.loc[dataset].sort_index()
+        losses = sign * own[list(ranked["means"].columns)]
+        even = np.arange(len(losses)) % 2 == 0
+        best_even = losses[even].mean().idxmin()
+        best_odd = losses[~even].mean().idxmin() if (~even).any() else best_even
+        d = np.where(even, losses[config] - losses[best_odd], losses[config] - losses[best_even])
+        t = corrected_ttest(d, own["n_train"], own["n_test"], alpha)
+        best = {best_even.label(), best_odd.label()}
         regrets.append(
             {
                 "dataset": dataset,
                 "regret": t.mean,
                 "ci_low": t.ci_low,
                 "ci_high": t.ci_high,
-                "best": best_config.label(),
+                "best": " / ".join(sorted(best)),
                 "loses": bool(t.ci_low > 0),
             }
         )
     return pd.DataFrame(regrets)
 
 
-def _config_folds(
-    folds: pd.DataFrame, dataset: str, config: Configuration, metric: str
-) -> pd.DataFrame:
-    """One configuration's folds on one data set, indexed by (repeat, fold)."""
-    rows = folds[folds["dataset"] == dataset]
+def _fold_losses(folds: pd.DataFrame, metric: str, configs: list) -> pd.DataFrame:
+    """(dataset, repeat, fold) x configurations of the metric, plus ``n_train``/``n_test``."""
+    columns = {}
+    info = None
+    for config in configs:
+        rows = _config_rows(folds, config).set_index(["dataset", "repeat", "fold"]).sort_index()
+        columns[config] = rows[metric]
+        if info is None:
+            info = rows[["n_train", "n_test"]]
+    frame = pd.DataFrame(columns)
+    frame.columns = pd.Index(configs, dtype=object)
+    return frame.join(info)
+
+
+def _config_rows(folds: pd.DataFrame, config: Configuration) -> pd.DataFrame:
+    """One configuration's folds on every data set (an unpruned tree once per fold)."""
     levels = config.levels()
     arm = "pruned" if config.pruned else "unpruned"
     names = factor_names() if config.pruned else growth_factors()
+    rows = folds[folds["arm"] == arm]
     for name in names:
         value = levels[name]
         rows = rows[rows[name].isna()] if value is None else rows[rows[name] == value]
-    rows = rows[rows["arm"] == arm]
     if not config.pruned:
-        rows = rows.drop_duplicates(["repeat", "fold"])
-    return rows.set_index(["repeat", "fold"])[[metric, "n_train", "n_test"]].sort_index()
+        rows = rows.drop_duplicates(["dataset", "repeat", "fold"])
+    return rows

@@ -34,24 +34,24 @@ import pandas as pd
 from scipy import stats as sps
 
 from .effects import (
-    _DEFAULT_METRIC,
-    _FAMILY_METRICS,
     FACTORS,
     EffectsError,
     _norm,
-    default_margin,
-    family_of,
+    check_decision,
     fill_zero_variances,
+    for_family,
     losses,
     random_effects_many,
 )
 from .exceptions import parameter_error
+from .vocabulary import DEFAULT_METRIC, default_margin, family_of, metric_names
 
 __all__ = [
     "config_frame",
     "config_label",
     "recommend",
     "stability",
+    "undecided",
     "upper_bounds",
 ]
 
@@ -249,11 +249,11 @@ def recommend(
         One row per trial, outer fold and arm (:func:`prunebench.results.load_folds`);
         ``root_feature`` and ``features_used`` columns, when present, give the
         stability of the chosen trees.
-    metric : str, optional
-        The primary metric; default ``error`` / ``mse``.
-    margin : float, optional
-        Practical-equivalence margin in loss units; default
-        :data:`~prunebench.effects.MARGINS` of the metric.
+    metric : str or dict, optional
+        The primary metric, or family -> metric; default ``error`` / ``mse``.
+    margin : float or dict, optional
+        Practical-equivalence margin in loss units, or family -> margin; default
+        :func:`~prunebench.vocabulary.default_margin` of the metric.
     alpha : float, default=0.05
         The acceptability bound is one-sided ``1 - alpha``.
     trials : dict, optional
@@ -263,7 +263,9 @@ def recommend(
     Returns
     -------
     list of dict
-        Per family: ``family``, ``metric``, ``margin``, ``alpha``, ``config`` (factor ->
+        Per family: ``family``, ``decided`` (False, with ``reason``, when no
+        configuration has every outer fold of every data set; the choice keys are then
+        None), ``metric``, ``margin``, ``alpha``, ``config`` (factor ->
         level), ``label``, ``mean_loss``, ``mean_leaves``, ``best`` (B: ``config``,
         ``label``, ``mean_loss``, ``mean_leaves``), ``acceptable`` (list, fewest leaves
         first: ``config``, ``label``, ``mean_loss``, ``mean_leaves``, ``upper_bound``),
@@ -271,18 +273,23 @@ def recommend(
         ``per_dataset``), ``trials``, ``datasets``, ``n_configurations`` and
         ``stability`` (list of per-data-set dicts from :func:`stability`, or None).
     """
-    if not 0 < alpha < 0.5:
-        raise parameter_error("alpha", "recommend", "a float in (0, 0.5)", alpha)
-    if margin is not None and not margin > 0:
-        raise parameter_error("margin", "recommend", "a positive float", margin)
+    check_decision("recommend", margin, alpha)
     out = []
     for family in sorted(set(folds["task"].map(family_of))):
-        m = metric or _DEFAULT_METRIC[family]
-        if m not in _FAMILY_METRICS[family]:
+        m = for_family(metric, family) or DEFAULT_METRIC[family]
+        if m not in metric_names(family):
             continue
-        fam_margin = default_margin(m) if margin is None else float(margin)
+        fam_margin = for_family(margin, family)
+        fam_margin = default_margin(m) if fam_margin is None else float(fam_margin)
+        counts = trials.get(family, trials) if isinstance(trials, dict) else None
+        if isinstance(counts, dict) and "done" not in counts:
+            counts = None
         frame = config_frame(folds, family, m)
-        datasets, configs, L, N, ratio = _matrices(frame)
+        try:
+            datasets, configs, L, N, ratio = _matrices(frame)
+        except EffectsError as err:
+            out.append(undecided(family, m, fam_margin, alpha, counts, str(err)))
+            continue
         best, upper, acceptable, choice, mean_loss, mean_leaves = _choose(
             L, N, ratio, fam_margin, alpha
         )
@@ -295,13 +302,12 @@ def recommend(
                 "mean_leaves": float(mean_leaves[i]),
             }
 
-        counts = trials.get(family, trials) if isinstance(trials, dict) else None
-        if isinstance(counts, dict) and "done" not in counts:
-            counts = None
         stable = stability(frame, configs[choice])
         out.append(
             {
                 "family": family,
+                "decided": True,
+                "reason": None,
                 "metric": m,
                 "margin": fam_margin,
                 "alpha": alpha,
@@ -318,6 +324,43 @@ def recommend(
     if not out:
         raise parameter_error("metric", "recommend", "a metric of the folds' tasks", metric)
     return out
+
+
+def undecided(family, metric, margin, alpha, counts, reason: str) -> dict:
+    """The record of a family the rule cannot decide: :func:`recommend`'s keys, nothing chosen.
+
+    Parameters
+    ----------
+    family, metric : str
+    margin, alpha : float
+    counts : dict or None
+        Trials done, failed and pending.
+    reason : str
+        Why nothing could be chosen.
+
+    Returns
+    -------
+    dict
+    """
+    return {
+        "family": family,
+        "decided": False,
+        "reason": reason,
+        "metric": metric,
+        "margin": margin,
+        "alpha": alpha,
+        "config": None,
+        "label": None,
+        "mean_loss": None,
+        "mean_leaves": None,
+        "best": None,
+        "acceptable": [],
+        "held_out": None,
+        "trials": dict(counts) if counts else None,
+        "datasets": [],
+        "n_configurations": 0,
+        "stability": None,
+    }
 
 
 def _feature_set(value) -> frozenset:

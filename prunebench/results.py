@@ -26,9 +26,12 @@ from .store import ResultStore, connect_readonly
 from .vocabulary import (
     CLASSIFICATION,
     DEFAULT_METRIC,
+    FAMILIES,
     REGRESSION,
+    default_margin,
     default_metric,
     factor_names,
+    family_of,
     metric_names,
 )
 
@@ -37,6 +40,7 @@ __all__ = [
     "Results",
     "arm_means",
     "conduct_table",
+    "decision_settings",
     "duration_text",
     "export_tables",
     "load_folds",
@@ -46,7 +50,9 @@ __all__ = [
     "resolve_study",
     "results_path",
     "run_query",
+    "study_levels",
     "study_overview",
+    "trial_counts",
     "trial_curves",
 ]
 
@@ -146,13 +152,18 @@ def resolve_study(store: ResultStore, study: str | None = None) -> dict:
 # ---- the folds every statistic starts from -----------------------------------------------
 
 
-def _folds_sql() -> str:
+#: tree-shape columns of ``folds`` since schema 2 (read when the file has them)
+_SHAPE_COLUMNS = ("root_feature", "features_used")
+
+
+def _folds_sql(shape: tuple[str, ...] = ()) -> str:
     factors = ", ".join(f"t.{f}" for f in factor_names())
     metrics = ", ".join(f"f.{m}" for m in metric_names())
+    extra = "".join(f", f.{c}" for c in shape)
     return (
         f"SELECT d.name AS dataset, d.task, t.trial_id, {factors}, "
         f'f."repeat", f.fold, f.arm, f.n_train, f.n_test, {metrics}, '
-        "f.n_leaves, f.depth, f.alpha "
+        f"f.n_leaves, f.depth, f.alpha{extra} "
         "FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id) "
         "WHERE t.study_id = ? AND t.status = 'done'"
     )
@@ -174,14 +185,119 @@ def load_folds(store: ResultStore, study: str | None = None) -> pd.DataFrame:
     -------
     DataFrame
         One row per trial, outer fold and arm; ``max_depth`` is a nullable integer
-        (missing = unlimited).
+        (missing = unlimited).  Files of schema 2 on also give ``root_feature`` (the
+        root split's feature index, nullable integer, missing for a single leaf) and
+        ``features_used`` (comma-separated feature indices).
     """
     study_id = resolve_study(store, study)["study_id"]
-    frame = pd.read_sql_query(_folds_sql(), store.db.conn, params=[study_id])
+    present = {r["name"] for r in store.query("PRAGMA table_info(folds)")}
+    shape = tuple(c for c in _SHAPE_COLUMNS if c in present)
+    frame = pd.read_sql_query(_folds_sql(shape), store.db.conn, params=[study_id])
     if frame.empty:
         raise QueryError(f"{store.path}: the study has no finished trials yet")
     frame["max_depth"] = frame["max_depth"].astype("Int64")
+    if "root_feature" in frame:
+        frame["root_feature"] = frame["root_feature"].astype("Int64")
     return frame
+
+
+# ---- the decision settings and trial counts of a study ------------------------------------
+
+
+def _families_of(store: ResultStore, study_id: str) -> list[str]:
+    tasks = store.query(
+        "SELECT DISTINCT d.task FROM trials t JOIN datasets d USING (dataset_id) "
+        "WHERE t.study_id = ?",
+        [study_id],
+    )
+    families = {family_of(r["task"]) for r in tasks}
+    return [f for f in FAMILIES if f in families]
+
+
+def decision_settings(
+    store: ResultStore,
+    study: str | None = None,
+    metric: str | None = None,
+    margin: float | None = None,
+    alpha: float | None = None,
+) -> dict:
+    """The study's ``[decision]`` settings (from its stored study file), flags applied.
+
+    The settings are derived from ``studies.study_text`` (no column of their own), so
+    a database of any schema has them.  A ``metric`` given here replaces the stored one
+    for the families that have it (the others are left out); its margin is then the
+    stored margin when the metric is the stored one, else the vocabulary's default.  A
+    ``margin`` or ``alpha`` given here replaces the stored one for every family.
+
+    Parameters
+    ----------
+    store : ResultStore
+    study : str, optional
+    metric : str, optional
+    margin : float, optional
+    alpha : float, optional
+
+    Returns
+    -------
+    dict
+        ``alpha`` (float), ``metric`` (family -> metric) and ``margin`` (family ->
+        margin), for the study's families.
+    """
+    from .study import decision_of_text
+
+    row = resolve_study(store, study)
+    families = _families_of(store, row["study_id"])
+    stored = decision_of_text(
+        row["study_text"], families, source=f"the stored study file of {row['name']!r}"
+    )
+    out = {"alpha": stored["alpha"] if alpha is None else alpha, "metric": {}, "margin": {}}
+    if metric is not None:
+        fitting = [f for f in families if metric in metric_names(f)]
+        if not fitting:
+            names = [m for f in families for m in metric_names(f)]
+            raise QueryError(
+                f"no dataset of this study has the metric {metric!r}; use one of {', '.join(names)}"
+            )
+        families = fitting
+    for family in families:
+        m = stored["metric"][family] if metric is None else metric
+        if margin is not None:
+            x = margin
+        elif m == stored["metric"][family]:
+            x = stored["margin"][family]
+        else:
+            x = default_margin(m)
+        out["metric"][family], out["margin"][family] = m, x
+    return out
+
+
+def trial_counts(store: ResultStore, study: str | None = None) -> dict:
+    """Trials done, failed and pending per task family of a study.
+
+    Returns
+    -------
+    dict
+        Family -> ``{"done": int, "failed": int, "pending": int}``.
+    """
+    study_id = resolve_study(store, study)["study_id"]
+    rows = store.query(
+        "SELECT d.task, t.status, COUNT(*) AS n FROM trials t JOIN datasets d "
+        "USING (dataset_id) WHERE t.study_id = ? GROUP BY d.task, t.status",
+        [study_id],
+    )
+    out: dict = {}
+    for r in rows:
+        counts = out.setdefault(family_of(r["task"]), {"done": 0, "failed": 0, "pending": 0})
+        counts[r["status"]] += r["n"]
+    return {f: out[f] for f in FAMILIES if f in out}
+
+
+def study_levels(store: ResultStore, study: str | None = None) -> dict:
+    """Family -> factor -> levels in the stored study file's order (reference first)."""
+    from .study import levels_of_text
+
+    row = resolve_study(store, study)
+    return {f: levels_of_text(row["study_text"], f) for f in _families_of(store, row["study_id"])}
 
 
 def arm_means(store: ResultStore, study_id: str) -> pd.DataFrame:
@@ -408,11 +524,105 @@ class Results:
 
         return ranking(self.fold_rows(), metric)
 
-    def recommendation(self) -> list[dict]:
-        """The recommended default per task family (see ``ranks.recommendation``)."""
-        from .ranks import recommendation
+    def decision(
+        self, metric: str | None = None, margin: float | None = None, alpha: float | None = None
+    ) -> dict:
+        """The study's ``[decision]`` settings with any given value in place of the stored one.
 
-        return recommendation(self.fold_rows())
+        See :func:`decision_settings`.
+        """
+        with self._store() as store:
+            return decision_settings(store, self.study, metric, margin, alpha)
+
+    def effects(
+        self,
+        metric: str | None = None,
+        margin: float | None = None,
+        alpha: float | None = None,
+        interactions: bool = False,
+    ) -> pd.DataFrame:
+        """Each factor level's effect on the primary metric and on tree size, across data sets.
+
+        The metric, margin and alpha default to the study's ``[decision]`` settings and
+        the reference levels are the stored study file's first levels.
+
+        Parameters
+        ----------
+        metric : str, optional
+        margin : float, optional
+        alpha : float, optional
+        interactions : bool, default=False
+            Return :func:`prunebench.effects.interaction_effects`' table instead.
+
+        Returns
+        -------
+        DataFrame
+            :data:`prunebench.effects.EFFECT_COLUMNS` (or ``INTERACTION_COLUMNS``), one row
+            per family, factor, non-reference level and metric (the primary one and
+            ``n_leaves``).
+        """
+        from .effects import factor_effects, interaction_effects
+
+        with self._store() as store:
+            settings = decision_settings(store, self.study, metric, margin, alpha)
+            levels = study_levels(store, self.study)
+            folds = load_folds(store, self.study)
+        for family, own in levels.items():
+            if not own:  # a search names no levels: the reference is the smallest level seen
+                mine = folds[folds["task"].map(family_of) == family]
+                levels[family] = {
+                    f: sorted(mine[f].dropna().unique().tolist()) + ([None] * mine[f].isna().any())
+                    for f in factor_names()
+                }
+        compute = interaction_effects if interactions else factor_effects
+        return compute(folds, levels, settings["metric"], settings["margin"], settings["alpha"])
+
+    def recommendation(
+        self, metric: str | None = None, margin: float | None = None, alpha: float | None = None
+    ) -> list[dict]:
+        """The recommended configuration per task family (:func:`prunebench.recommend.recommend`).
+
+        The metric, margin and alpha default to the study's ``[decision]`` settings; the
+        trial counts (done, failed, pending) of every family are included, and a family
+        with trials but no finished fold is reported as undecided.
+
+        Returns
+        -------
+        list of dict
+            One per family of the study, as :func:`prunebench.recommend.recommend`
+            (``decided`` False with a ``reason`` where nothing could be chosen).
+        """
+        from .recommend import recommend, undecided
+
+        with self._store() as store:
+            settings = decision_settings(store, self.study, metric, margin, alpha)
+            counts = trial_counts(store, self.study)
+            try:
+                folds = load_folds(store, self.study)
+            except QueryError:
+                folds = None
+        recs = []
+        if folds is not None:
+            fitting = folds[folds["task"].map(family_of).isin(settings["metric"])]
+            if not fitting.empty:
+                recs = recommend(
+                    fitting, settings["metric"], settings["margin"], settings["alpha"], counts
+                )
+        decided = {r["family"] for r in recs}
+        for family in settings["metric"]:
+            if family not in decided:
+                recs.append(
+                    undecided(
+                        family,
+                        settings["metric"][family],
+                        settings["margin"][family],
+                        settings["alpha"],
+                        counts.get(family),
+                        "no finished trial",
+                    )
+                )
+        order = {f: i for i, f in enumerate(FAMILIES)}
+        return sorted(recs, key=lambda r: order[r["family"]])
 
 
 def open_results(path: str | Path, study: str | None = None) -> Results:

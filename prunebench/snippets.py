@@ -8,8 +8,6 @@ recommendation carries, and :func:`recommendation_records` the JSON shape of
 
 from __future__ import annotations
 
-import json
-
 from .vocabulary import (
     CLASSIFICATION,
     FACTORS,
@@ -24,6 +22,7 @@ __all__ = [
     "ESTIMATORS",
     "estimator_block",
     "estimator_for",
+    "plain_json",
     "recommendation_records",
     "study_fragment",
 ]
@@ -73,7 +72,7 @@ def estimator_block(rec: dict) -> str:
     Parameters
     ----------
     rec : dict
-        One entry of :func:`prunebench.ranks.recommendation` (``family`` and ``config``).
+        One entry of :func:`prunebench.recommend.recommend` (``family`` and ``config``).
 
     Returns
     -------
@@ -115,31 +114,65 @@ def study_fragment(rec: dict) -> str:
     return "\n".join(lines)
 
 
+def plain_json(value):
+    """A nested value made JSON-ready: NaN -> None, numpy scalars -> Python scalars."""
+    import math
+
+    if isinstance(value, dict):
+        return {k: plain_json(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [plain_json(v) for v in value]
+    if hasattr(value, "item") and not isinstance(value, str):
+        value = value.item()
+    if isinstance(value, float) and math.isnan(value):
+        return None
+    return value
+
+
+_RECORD_KEYS = (
+    "family",
+    "decided",
+    "reason",
+    "metric",
+    "margin",
+    "alpha",
+    "config",
+    "label",
+    "mean_loss",
+    "mean_leaves",
+    "best",
+    "acceptable",
+    "held_out",
+    "trials",
+    "datasets",
+    "n_configurations",
+    "stability",
+)
+
+
 def recommendation_records(recs: list[dict]) -> list[dict]:
     """The recommendations as JSON-ready records, with the code to paste and the caution.
 
     Parameters
     ----------
     recs : list of dict
-        From :func:`prunebench.ranks.recommendation`.
+        From :func:`prunebench.recommend.recommend` (or ``Results.recommendation``).
 
     Returns
     -------
     list of dict
+        Per family the keys of :func:`~prunebench.recommend.recommend` (``config``,
+        ``label``, ``mean_loss``, ``mean_leaves``, ``margin``, ``best``, ``acceptable``,
+        ``held_out``, ``trials``, ``decided``, ``reason``, ``stability``, ...; NaN as
+        None, integer levels as integers), plus ``estimator`` and ``study_fragment`` of
+        the recommended configuration (None when undecided) and ``caution``.
     """
-    return [
-        {
-            "family": r["family"],
-            "metric": r["metric"],
-            "config": r["config"],
-            "mean_rank": r["mean_rank"],
-            "mean_leaves": r["mean_leaves"],
-            "mean_regret": r["mean_regret"],
-            "worst_regret": r["worst_regret"],
-            "regret": json.loads(r["regret"].to_json(orient="records")),
-            "estimator": estimator_block(r),
-            "study_fragment": study_fragment(r),
-            "caution": "Caution: " + CAUTION,
-        }
-        for r in recs
-    ]
+    out = []
+    for r in recs:
+        record = plain_json({k: r.get(k) for k in _RECORD_KEYS})
+        chosen = r.get("config") is not None
+        record["estimator"] = estimator_block(r) if chosen else None
+        record["study_fragment"] = study_fragment(r) if chosen else None
+        record["caution"] = "Caution: " + CAUTION
+        out.append(record)
+    return out

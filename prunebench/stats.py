@@ -84,7 +84,6 @@ COMPARISON_COLUMNS = [
 ]
 
 
-
 def __getattr__(name: str):
     # names that moved to the vocabulary, computed on access so that an added metric or
     # factor shows here too; the ranking moved to prunebench.ranks
@@ -220,7 +219,9 @@ def friedman_test(scores: np.ndarray) -> dict:
     """Friedman's test over an (N data sets x k configurations) matrix of losses.
 
     Ranks within each data set (1 = lowest loss, ties averaged), then
-    ``chi2_F = 12N / (k(k+1)) * (sum R_j^2 - k(k+1)^2/4)`` and Iman & Davenport's
+    ``chi2_F = 12N / (k(k+1)) * (sum R_j^2 - k(k+1)^2/4)`` divided by the tie correction
+    ``1 - sum(t^3 - t) / (N k (k^2 - 1))`` over every group of t tied values in a row
+    (as scipy's ``friedmanchisquare``; every row tied throughout gives NaN), and Iman & Davenport's
     ``F_F = (N-1) chi2_F / (N(k-1) - chi2_F)`` with (k-1, (k-1)(N-1)) degrees of
     freedom (Demšar 2006, §3.2.2).
 
@@ -236,16 +237,24 @@ def friedman_test(scores: np.ndarray) -> dict:
     """
     scores = np.asarray(scores, dtype=float)
     ranks = np.apply_along_axis(sps.rankdata, 1, scores)
-    return friedman_from_ranks(ranks.mean(axis=0), scores.shape[0])
+    n, k = scores.shape
+    ties = sum(
+        float(np.sum(c**3 - c)) for c in (np.unique(row, return_counts=True)[1] for row in scores)
+    )
+    correction = 1 - ties / (n * k * (k * k - 1)) if k > 1 else 1.0
+    return friedman_from_ranks(ranks.mean(axis=0), n, correction)
 
 
-def friedman_from_ranks(mean_ranks, n: int) -> dict:
+def friedman_from_ranks(mean_ranks, n: int, correction: float = 1.0) -> dict:
     """Friedman and Iman-Davenport statistics from mean ranks over ``n`` data sets.
 
     Parameters
     ----------
     mean_ranks : array-like of shape (k,)
     n : int
+    correction : float, default=1.0
+        The tie correction ``1 - sum(t^3 - t) / (n k (k^2 - 1))`` (1 without ties); the
+        statistic is divided by it, and is NaN when it is 0 (every row tied throughout).
 
     Returns
     -------
@@ -255,9 +264,11 @@ def friedman_from_ranks(mean_ranks, n: int) -> dict:
     mean_ranks = np.asarray(mean_ranks, dtype=float)
     k = mean_ranks.size
     chi2 = 12 * n / (k * (k + 1)) * (np.sum(mean_ranks**2) - k * (k + 1) ** 2 / 4)
+    chi2 = chi2 / correction if correction > 0 else np.nan
     df1, df2 = k - 1, (k - 1) * (n - 1)
     denominator = n * (k - 1) - chi2
     ff = (n - 1) * chi2 / denominator if denominator > 0 else np.inf
+    ff = np.nan if np.isnan(chi2) else ff
     return {
         "mean_ranks": mean_ranks,
         "chi2": float(chi2),
@@ -335,8 +346,9 @@ def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, 
     ----------
     folds : DataFrame
         From :func:`prunebench.results.load_folds`.
-    metric : str, optional
-        Default: each task family's default metric.
+    metric : str or dict, optional
+        Default: each task family's default metric; family -> metric keeps only the
+        families named.
 
     Returns
     -------
@@ -344,7 +356,12 @@ def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, 
     """
     tasks = {}
     for task in folds["task"].unique():
-        chosen = metric or default_metric(task)
+        if isinstance(metric, dict):  # family -> metric: the families named only
+            if family_of(task) not in metric:
+                continue
+            chosen = metric[family_of(task)] or default_metric(task)
+        else:
+            chosen = metric or default_metric(task)
         if chosen not in metric_names(family_of(task)):
             continue
         tasks[task] = chosen
@@ -397,10 +414,16 @@ def _paired_means(folds: pd.DataFrame, metric: str | None) -> pd.DataFrame:
     return meta.join(agg)
 
 
-def _verdicts(table: pd.DataFrame) -> np.ndarray:
-    """Which arm the corrected interval of the difference favours, in the metric's direction."""
+def _verdicts(table: pd.DataFrame, alpha: float) -> np.ndarray:
+    """Which arm the difference favours when its Holm-adjusted p is below alpha.
+
+    The family of tests is every row of the table; the direction follows the sign of
+    the mean difference and the metric's direction.
+    """
     lower_better = ~table["metric"].map(higher_is_better).astype(bool)
-    below, above = table["ci_high"] < 0, table["ci_low"] > 0
+    significant = table["p_holm"] < alpha
+    below = significant & (table["diff"] < 0)
+    above = significant & (table["diff"] > 0)
     return np.select(
         [below & lower_better, above & ~lower_better, above & lower_better, below & ~lower_better],
         ["pruned better", "pruned better", "unpruned better", "unpruned better"],
@@ -425,7 +448,9 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         One row per data set and configuration: the factor columns, ``metric``,
         ``mean_pruned``, ``mean_unpruned``, the paired ``diff`` (pruned - unpruned)
         with its corrected ``ci_low``/``ci_high`` and ``p_value``, the naive interval
-        and p-value, ``p_holm`` (Holm-adjusted over all rows), ``verdict``, the
+        and p-value, ``p_holm`` (Holm-adjusted over all rows), ``verdict`` ("pruned
+        better" / "unpruned better" when ``p_holm`` < alpha, else "no evidence either
+        way"), the
         arms' corrected CIs, ``leaves_pruned``, ``leaves_unpruned``, ``leaves_saved``
         with its corrected CI, and ``n_folds``.
     """
@@ -439,11 +464,11 @@ def comparison(folds: pd.DataFrame, metric: str | None = None, alpha: float = 0.
         table[f"{arm}_ci_low"], table[f"{arm}_ci_high"] = r["ci_low"], r["ci_high"]
     saved = _corrected(table["leaves_saved"], table["var_saved"], n, ratio, alpha)
     table["leaves_saved_ci_low"], table["leaves_saved_ci_high"] = saved["ci_low"], saved["ci_high"]
-    table["verdict"] = _verdicts(table)
     table = table.sort_values(["dataset", *factor_names()], na_position="last")
     table = table.reset_index(drop=True)
     table["max_depth"] = table["max_depth"].astype("Int64")
     table["p_holm"] = holm(table["p_value"])
+    table["verdict"] = _verdicts(table, alpha)
     return table[COMPARISON_COLUMNS]
 
 

@@ -38,7 +38,7 @@ __all__ = [
     "utc_now",
 ]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _SCHEMA_TEMPLATE = """
 CREATE TABLE studies (
@@ -100,6 +100,8 @@ CREATE TABLE folds (
     depth INTEGER NOT NULL,
     alpha REAL NOT NULL,
     fit_seconds REAL NOT NULL,
+    root_feature INTEGER,
+    features_used TEXT,
     PRIMARY KEY (trial_id, "repeat", fold, arm)
 );
 CREATE INDEX folds_arm ON folds(arm);
@@ -162,7 +164,11 @@ def schema_sql() -> str:
 
 
 # schema version n -> SQL that brings a version-n file to n + 1
-_UPGRADES: dict[int, str] = {}
+_UPGRADES: dict[int, str] = {
+    # 2: the root split's feature index (NULL for a single leaf) and the features a tree uses
+    1: "ALTER TABLE folds ADD COLUMN root_feature INTEGER; "
+    "ALTER TABLE folds ADD COLUMN features_used TEXT;",
+}
 
 
 

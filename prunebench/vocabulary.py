@@ -30,11 +30,13 @@ __all__ = [
     "Metric",
     "config_label",
     "counted",
+    "default_margin",
     "default_metric",
     "factor_names",
     "family_of",
     "growth_factors",
     "higher_is_better",
+    "is_relative",
     "metric_names",
     "prune_risk_names",
 ]
@@ -213,6 +215,22 @@ def default_metric(task: str) -> str:
 def higher_is_better(metric: str) -> bool:
     """Whether larger values of a metric are better (False for a loss)."""
     return METRICS[metric].higher_is_better
+
+
+def default_margin(metric: str) -> float:
+    """The default margin of practical equivalence of a metric (DESIGN.md "Decision").
+
+    In the metric's units (0.01 of error, accuracy and Brier, 0.02 of log loss), or
+    as a share of the data set's unpruned loss when :func:`is_relative` (1% for MSE and
+    MAE).  The one source of margins: effects, the recommendation, ``compare`` and
+    ``rank`` all read it.
+    """
+    return METRICS[metric].margin
+
+
+def is_relative(metric: str) -> bool:
+    """Whether a metric's margin and contrasts are relative to the unpruned loss."""
+    return METRICS[metric].relative
 
 
 # ---- configurations --------------------------------------------------------------------

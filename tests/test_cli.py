@@ -158,3 +158,58 @@ def test_light_commands_import_no_plotting_or_search_library(args, tmp_path):
         [sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path, check=True
     )
     assert out.stdout.strip().splitlines()[-1] == "[]"
+
+
+def test_effects_help_names_the_method_and_options():
+    result = CliRunner().invoke(main, ["effects", "--help"])
+    assert result.exit_code == 0
+    # click wraps at hyphens too: join the lines back before looking for the words
+    text = " ".join(re.sub(r"-\n\s*", "-", result.output).split())
+    for words in ("reference level", "Hartung-Knapp", "prediction interval", "Holm-adjusted"):
+        assert words in text, words
+    for option in ("--db", "--study", "--metric", "--margin", "--alpha", "--json", "--csv"):
+        assert option in result.output
+    assert "--interactions" in result.output
+
+
+def test_recommend_help_names_the_rule():
+    result = CliRunner().invoke(main, ["recommend", "--help"])
+    text = " ".join(re.sub(r"-\n\s*", "-", result.output).split())
+    assert "fewest leaves" in text and "leaving each dataset out" in text and "--margin" in text
+
+
+def test_effects_json_rows_are_the_issues_keys(small_db):
+    import json
+    import math
+
+    from prunebench import open_results
+
+    out = CliRunner().invoke(main, ["effects", "--db", str(small_db), "--json"])
+    assert out.exit_code == 0, out.output
+    rows = json.loads(out.output)
+    keys = [
+        "family", "factor", "level", "reference", "metric", "estimate", "ci_low", "ci_high",
+        "pi_low", "pi_high", "tau2", "i2", "n_datasets", "p_value", "p_holm", "verdict",
+    ]  # fmt: skip
+    table = open_results(small_db).effects()
+    assert len(rows) == len(table)
+    for row, (_, expected) in zip(rows, table.iterrows(), strict=True):
+        size = row["metric"] == "n_leaves"
+        assert list(row) == keys + (["ratio", "ratio_low", "ratio_high"] if size else [])
+        for key in keys[5:-1]:
+            value = expected[key]
+            if isinstance(value, float) and math.isnan(value):
+                assert row[key] is None  # NaN -> null
+            else:
+                assert row[key] == pytest.approx(value, rel=1e-12)
+        if size:
+            assert row["ratio"] == pytest.approx(math.exp(row["estimate"]), rel=1e-12)
+    depth = [r for r in rows if r["factor"] == "max_depth"]
+    assert depth and all(r["level"] == 3 and r["reference"] is None for r in depth)
+    text = CliRunner().invoke(main, ["effects", "--db", str(small_db)])
+    assert text.exit_code == 0 and "pruned vs unpruned" in text.output and "×" in text.output
+    assert max(len(line) for line in text.output.splitlines()) <= 100
+    csv = CliRunner().invoke(main, ["effects", "--db", str(small_db), "--csv"])
+    assert csv.output.splitlines()[0].startswith("family,factor,level,reference,metric")
+    both = CliRunner().invoke(main, ["effects", "--db", str(small_db), "--json", "--csv"])
+    assert both.exit_code == 2

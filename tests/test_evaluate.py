@@ -206,3 +206,40 @@ def test_a_billion_repeats_stop_at_the_time_limit_in_bounded_memory(tmp_path):
     assert "time_limit of 1 s" in out.stdout
     peak_mib = int(out.stdout.split()[-1]) / 1024
     assert peak_mib < 600, peak_mib
+
+
+def test_tree_features_agree_with_export_text():
+    import re
+
+    from sklearn.datasets import load_wine
+    from sklearn.tree import DecisionTreeClassifier, export_text
+
+    from prunebench.evaluate import tree_features
+
+    X, y = load_wine(return_X_y=True)
+    tree = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X, y)
+    got = tree_features(tree)
+    # scikit-learn's export_text (reference library) names every split "feature_i <= t";
+    # its first line is the root split
+    text = export_text(tree)
+    used = sorted({int(i) for i in re.findall(r"feature_(\d+) <=", text)})
+    root = int(re.search(r"feature_(\d+)", text.splitlines()[0]).group(1))
+    assert got == {"root_feature": root, "features_used": ",".join(map(str, used))}
+    stump = DecisionTreeClassifier(max_depth=1).fit(X[y == 0], y[y == 0])  # one class: a leaf
+    assert tree_features(stump) == {"root_feature": None, "features_used": ""}
+
+
+def test_stored_folds_carry_the_pruned_trees_shape(small_db):
+    import sqlite3
+
+    conn = sqlite3.connect(small_db)
+    rows = conn.execute(
+        "SELECT root_feature, features_used, n_leaves FROM folds WHERE arm = 'pruned'"
+    ).fetchall()
+    assert rows
+    for root, used, leaves in rows:
+        features = [int(f) for f in used.split(",")] if used else []
+        if leaves == 1:
+            assert root is None and features == []
+        else:
+            assert root in features and features == sorted(set(features))

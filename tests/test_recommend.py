@@ -127,7 +127,17 @@ def test_recommendation_is_the_fewest_leaves_of_the_acceptable_set(small_folds):
     assert choice != best and leaves[choice] < leaves[best]
     assert r["margin"] == MARGIN and r["metric"] == "error"
     assert r["trials"] == {"done": 16, "failed": 1, "pending": 2}
-    assert r["stability"] is None  # the folds have no root_feature / features_used yet
+    # the stored folds carry root_feature / features_used: by hand, the share of the
+    # chosen configuration's outer folds whose tree splits first on the commonest root
+    chosen = small_folds[small_folds["arm"] == "pruned"]
+    for factor, level in zip(FACTORS, choice, strict=True):
+        column = chosen[factor]
+        chosen = chosen[column.isna() if level is None else column == level]
+    assert len(r["stability"]) == 3
+    for s in r["stability"]:
+        roots = chosen.loc[chosen["dataset"] == s["dataset"], "root_feature"].astype(str)
+        assert len(roots) == s["n_folds"] == 6
+        assert s["root_share"] == pytest.approx(roots.value_counts().max() / len(roots))
 
 
 def test_leave_one_data_set_out_recomputed(small_folds):
@@ -224,3 +234,14 @@ def test_bad_parameters_are_named(small_folds):
         recommend.recommend(small_folds, margin=0)
     with pytest.raises(InvalidParameterError, match="'metric' parameter of recommend"):
         recommend.recommend(small_folds, metric="mse")
+
+
+def test_a_family_without_complete_folds_is_named_undecided(small_folds):
+    # every configuration lacks one outer fold of iris: nothing has every fold of every set
+    gap = small_folds[~((small_folds["dataset"] == "iris") & (small_folds["fold"] == 0))]
+    gap = gap[~((gap["dataset"] == "wine") & (gap["fold"] == 1))]
+    (r,) = recommend.recommend(gap, trials={"done": 3, "failed": 0, "pending": 5})
+    assert r["decided"] is False and r["config"] is None and "outer folds" in r["reason"]
+    assert r["trials"] == {"done": 3, "failed": 0, "pending": 5}
+    # alpha = 0.5 is allowed ((0, 0.5]), above it is not
+    assert recommend.recommend(small_folds, alpha=0.5)[0]["decided"]

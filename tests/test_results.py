@@ -420,3 +420,122 @@ def test_conduct_table_pivots_the_arm_means(mixed_db):
     assert got["leaves_unpruned"] == pytest.approx(
         row.loc[row["arm"] == "unpruned", "n_leaves"].item()
     )
+
+
+# ---- decision settings, trial counts, effects and the recommendation ------------------
+
+
+def _copy_with(tmp_path, source, *statements):
+    import shutil
+
+    path = tmp_path / "copy.sqlite"
+    shutil.copy(source, path)
+    conn = sqlite3.connect(path)
+    with conn:
+        for statement in statements:
+            conn.execute(statement)
+    conn.close()
+    return path
+
+
+def test_decision_settings_come_from_the_stored_study_and_flags_override(small_db, tmp_path):
+    path = _copy_with(
+        tmp_path,
+        small_db,
+        "UPDATE studies SET study_text = study_text || "
+        "'\n[decision]\nmetric = \"brier\"\nmargin = 0.03\nalpha = 0.1\n'",
+    )
+    with ResultStore(path, readonly=True) as store:
+        stored = results.decision_settings(store)
+        assert stored == {
+            "alpha": 0.1,
+            "metric": {"classification": "brier"},
+            "margin": {"classification": 0.03},
+        }
+        # another metric: its own default margin (0.02 for log loss), not brier's 0.03
+        flag = results.decision_settings(store, metric="log_loss")
+        assert flag["metric"] == {"classification": "log_loss"}
+        assert flag["margin"] == {"classification": 0.02} and flag["alpha"] == 0.1
+        both = results.decision_settings(store, margin=0.05, alpha=0.2)
+        assert both["margin"] == {"classification": 0.05} and both["alpha"] == 0.2
+        with pytest.raises(results.QueryError, match="'mse'.*use one of error"):
+            results.decision_settings(store, metric="mse")
+    # every read command reads it: effects' rows are on brier, with its margin
+    out = CliRunner().invoke(main, ["effects", "--db", str(path), "--json"])
+    assert out.exit_code == 0, out.output
+    assert {r["metric"] for r in json.loads(out.output)} == {"brier", "n_leaves"}
+    rec = json.loads(CliRunner().invoke(main, ["recommend", "--db", str(path), "--json"]).output)
+    assert rec[0]["metric"] == "brier" and rec[0]["margin"] == 0.03 and rec[0]["alpha"] == 0.1
+    args = ["recommend", "--db", str(path), "--json", "--alpha", "0.2"]
+    flag = json.loads(CliRunner().invoke(main, args).output)
+    assert flag[0]["alpha"] == 0.2
+    bad = CliRunner().invoke(main, ["recommend", "--db", str(path), "--alpha", "2"])
+    assert bad.exit_code == 2 and "alpha" in bad.output and len(bad.output.splitlines()) == 1
+
+
+def test_results_effects_use_the_study_files_reference_levels(small_db):
+    from prunebench.effects import factor_effects
+
+    opened = open_results(small_db)
+    table = opened.effects()
+    # tests/conftest.py's SMALL_STUDY lists gini, "none", 3 folds and "min" first
+    expected = factor_effects(
+        opened.fold_rows(),
+        {"criterion": ["gini", "entropy"], "max_depth": [None, 3], "inner_folds": [3, 4],
+         "rule": ["min", "1se"]},
+    )
+    pd.testing.assert_frame_equal(table, expected)
+    assert set(table.loc[table["factor"] == "rule", "reference"]) == {"min"}
+    inter = opened.effects(interactions=True)
+    assert {"by", "by_level", "flagged"} <= set(inter.columns)
+
+
+def test_load_folds_has_the_tree_shape(small_db):
+    with ResultStore(small_db, readonly=True) as store:
+        folds = results.load_folds(store)
+    assert str(folds["root_feature"].dtype) == "Int64"
+    assert folds["features_used"].map(type).eq(str).all()
+
+
+def test_recommend_on_an_unfinished_study_says_counts_first_and_names_undecided(
+    mixed_db, tmp_path
+):
+    # issue 12 item 4: the regression trials pending, two classification trials failed
+    path = _copy_with(
+        tmp_path,
+        mixed_db,
+        "UPDATE trials SET status = 'pending' WHERE dataset_id IN "
+        "(SELECT dataset_id FROM datasets WHERE task = 'regression')",
+        "UPDATE trials SET status = 'failed' WHERE trial_id IN (SELECT trial_id FROM trials "
+        "t JOIN datasets d USING (dataset_id) WHERE d.task != 'regression' "
+        "ORDER BY trial_id LIMIT 2)",
+    )
+    conn = sqlite3.connect(path)
+    counts = dict(
+        conn.execute(
+            "SELECT d.task = 'regression', COUNT(*) FROM trials JOIN datasets d "
+            "USING (dataset_id) GROUP BY 1"
+        ).fetchall()
+    )
+    with ResultStore(path, readonly=True) as store:
+        got = results.trial_counts(store)
+    assert got == {
+        "classification": {"done": counts[0] - 2, "failed": 2, "pending": 0},
+        "regression": {"done": 0, "failed": 0, "pending": counts[1]},
+    }
+    text = CliRunner().invoke(main, ["recommend", "--db", str(path)])
+    assert text.exit_code == 0, text.output
+    head = text.output.split("\n\n")[0]  # what comes before the first family's block
+    first = head.splitlines()
+    assert first[0].startswith("trials: classification: ")
+    assert f"{counts[0] - 2} done, 2 failed, 0 pending" in first[0]
+    assert f"regression: 0 done, 0 failed, {counts[1]} pending" in " ".join(first)
+    assert any(line.startswith("warning: the study is not complete") for line in first)
+    assert "could not decide: regression (no finished trial)" in " ".join(first)
+    args = ["recommend", "--db", str(path), "--json"]
+    records = json.loads(CliRunner().invoke(main, args).output)
+    by = {r["family"]: r for r in records}
+    assert by["regression"]["decided"] is False and by["regression"]["config"] is None
+    assert by["regression"]["trials"] == got["regression"]
+    assert by["classification"]["decided"] is True
+    assert by["classification"]["trials"] == got["classification"]

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import tomllib
 
-import pandas as pd
 import pytest
 
 from prunebench import PrunedTreeClassifier, PrunedTreeRegressor
@@ -92,18 +91,35 @@ def test_estimator_for_a_task(task, estimator):
 
 
 def test_recommendation_records_are_json_with_code_and_caution():
+    import math
+
     rec = {
         "family": "classification",
+        "decided": True,
+        "reason": None,
         "metric": "error",
-        "config": PRUNED,
-        "mean_rank": 1.5,
+        "margin": 0.01,
+        "alpha": 0.05,
+        "config": {**PRUNED, "max_depth": 4},
+        "label": "x",
+        "mean_loss": 0.1,
         "mean_leaves": 6.0,
-        "mean_regret": 0.01,
-        "worst_regret": 0.03,
-        "regret": pd.DataFrame({"dataset": ["iris"], "regret": [0.01]}),
+        "best": {"config": UNPRUNED, "label": "u", "mean_loss": 0.09, "mean_leaves": 20.0},
+        "acceptable": [{"config": PRUNED, "upper_bound": 0.004, "mean_leaves": 6.0}],
+        "held_out": {"mean_regret": 0.01, "share_over_margin": 0.25, "n_datasets": 4},
+        "trials": {"done": 10, "failed": 1, "pending": 2},
+        "datasets": ["iris"],
+        "n_configurations": 3,
+        "stability": [{"dataset": "iris", "jaccard": math.nan}],
     }
-    (record,) = json.loads(json.dumps(recommendation_records([rec]), default=str))
-    assert record["regret"] == [{"dataset": "iris", "regret": 0.01}]
+    (record,) = json.loads(json.dumps(recommendation_records([rec])))
+    assert record["config"]["max_depth"] == 4 and isinstance(record["config"]["max_depth"], int)
+    assert record["stability"][0]["jaccard"] is None  # NaN -> null
+    assert record["trials"] == {"done": 10, "failed": 1, "pending": 2}
+    assert record["acceptable"][0]["upper_bound"] == 0.004
     assert record["caution"] == "Caution: " + CAUTION
     assert _model(record["estimator"]).get_params()["rule"] == "0.5se"
     assert tomllib.loads(record["study_fragment"])["factors"]["classification"]["rule"] == ["0.5se"]
+    undecided = {**rec, "decided": False, "config": None, "reason": "no finished trial"}
+    (record,) = recommendation_records([undecided])
+    assert record["estimator"] is None and record["study_fragment"] is None

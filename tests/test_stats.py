@@ -203,6 +203,25 @@ def test_friedman_matches_scipy():
     assert ours["p_chi2"] == pytest.approx(theirs.pvalue)
 
 
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_friedman_tie_correction_matches_scipy(seed):
+    # integer scores on 3 levels: many ties within each data set, so the tie correction
+    # matters; scipy's friedmanchisquare (reference library) applies it
+    scores = np.random.default_rng(seed).integers(0, 3, size=(15, 5)).astype(float)
+    ours = stats.friedman_test(scores)
+    theirs = sps.friedmanchisquare(*scores.T)
+    assert ours["chi2"] == pytest.approx(theirs.statistic, rel=1e-12)
+    assert ours["p_chi2"] == pytest.approx(theirs.pvalue, rel=1e-10)
+    # without the correction the statistic is smaller: the test would fail
+    plain = stats.friedman_from_ranks(ours["mean_ranks"], 15)
+    assert plain["chi2"] < ours["chi2"]
+
+
+def test_friedman_of_rows_tied_throughout_is_nan():
+    result = stats.friedman_test(np.ones((4, 3)))
+    assert np.isnan(result["chi2"]) and np.isnan(result["p_chi2"])
+
+
 def test_demsar_worked_example():
     # Demšar (2006) §3.2.2: 4 methods on 14 data sets, mean ranks 3.143, 2.000, 2.893,
     # 1.964: chi2_F = 9.28, F_F = 3.69, CD at 0.05 = 1.25 (from memory of the paper,
@@ -298,14 +317,75 @@ def test_compare_json_agrees_with_a_recomputation_from_the_folds_table(db):
             assert row["ci_low"] == pytest.approx(d.mean() - q * se)
             assert row["ci_high"] == pytest.approx(d.mean() + q * se)
             assert row["p_value"] == pytest.approx(2 * sps.t.sf(abs(d.mean()) / se, j - 1))
-        verdict = (
-            "pruned better"
-            if row["ci_high"] < 0
-            else "unpruned better"
-            if row["ci_low"] > 0
-            else "no evidence either way"
-        )
+    # the verdict follows Holm's adjustment over every row (Holm 1979, recomputed here
+    # by statsmodels' multipletests as reference library)
+    multitest = pytest.importorskip("statsmodels.stats.multitest")
+    p = np.array([r["p_value"] for r in rows], dtype=float)
+    ok = ~np.isnan(p)
+    holm = np.full(p.size, np.nan)
+    holm[ok] = multitest.multipletests(p[ok], method="holm")[1]
+    for row, adjusted in zip(rows, holm, strict=True):
+        assert row["p_holm"] == pytest.approx(adjusted, nan_ok=True)
+        lower_better = row["metric"] != "accuracy"
+        verdict = "no evidence either way"
+        if adjusted < 0.05 and row["diff"] != 0:
+            pruned_better = (row["diff"] < 0) == lower_better
+            verdict = "pruned better" if pruned_better else "unpruned better"
         assert row["verdict"] == verdict
+
+
+def _many_trials(p_target_rows: int = 10):
+    """One data set, ten configurations: one with a clear but modest gain, nine without."""
+    import pandas as pd
+
+    rng = np.random.default_rng(11)
+    rows = []
+    for c in range(p_target_rows):
+        shift = -0.03 if c == 0 else 0.0
+        noise = rng.normal(0, 0.03, 10)
+        noise -= noise.mean()
+        for fold in range(10):
+            for arm, value in (("unpruned", 0.2), ("pruned", 0.2 + shift + noise[fold])):
+                rows.append(
+                    {
+                        "dataset": "d0",
+                        "task": "binary",
+                        "trial_id": f"t{c}",
+                        "criterion": "gini",
+                        "max_depth": None,
+                        "min_samples_leaf": 1 + c,
+                        "inner_folds": 5,
+                        "rule": "min",
+                        "prune_risk": "error",
+                        "repeat": 0,
+                        "fold": fold,
+                        "arm": arm,
+                        "n_train": 90,
+                        "n_test": 10,
+                        "error": value,
+                        "n_leaves": 4 if arm == "pruned" else 9,
+                    }
+                )
+    frame = pd.DataFrame(rows)
+    frame["max_depth"] = frame["max_depth"].astype("Int64")
+    return frame
+
+
+def test_compare_verdicts_follow_holm_not_the_unadjusted_p():
+    table = stats.comparison(_many_trials())
+    first = table[table["min_samples_leaf"] == 1].iloc[0]
+    # unadjusted p below 0.05 (the corrected interval excludes 0) but Holm over ten rows
+    # (the smallest p times 10) above it: no verdict
+    assert first["p_value"] < 0.05 < first["p_holm"]
+    assert first["p_holm"] == pytest.approx(min(1.0, 10 * first["p_value"]))
+    assert first["verdict"] == "no evidence either way"
+    # at alpha = 0.5 the adjusted p is below alpha: pruning is better
+    loose = stats.comparison(_many_trials(), alpha=0.5)
+    assert loose.loc[loose["min_samples_leaf"] == 1, "verdict"].iloc[0] == "pruned better"
+    from prunebench.text import compare_text
+
+    text = compare_text(table)
+    assert "Holm" in text and "0 after Holm" in text
 
 
 def test_compare_csv_and_table(db):
@@ -352,6 +432,5 @@ def test_an_unknown_metric_lists_the_metrics_of_the_study_families(folds, small_
     # metrics are listed; one line on the command line, exit 2
     result = CliRunner().invoke(main, ["compare", "--db", str(small_db), "--metric", "mse"])
     assert result.exit_code == 2 and result.output.count("\n") == 1
-    assert result.output.rstrip().endswith(
-        "its datasets have error, accuracy, balanced_accuracy, log_loss, brier"
-    )
+    assert "'mse'" in result.output
+    assert result.output.rstrip().endswith("error, accuracy, balanced_accuracy, log_loss, brier")

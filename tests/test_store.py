@@ -268,16 +268,58 @@ def test_a_lock_named_by_a_living_process_is_not_taken(tmp_path):
         pass
 
 
-def test_schema_is_the_previous_releases(tmp_path):
-    # the metric columns and views are generated from the vocabulary; a database written
-    # by 0.1.0 (tests/fixtures/previous_release.sqlite) must see the very same schema
+def _schema(path):
     import re
+
+    rows = sqlite3.connect(path).execute("SELECT type, name, sql FROM sqlite_master")
+    return sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
+
+
+def _columns(path, table):
+    rows = sqlite3.connect(path).execute(f"PRAGMA table_info({table})")
+    return [(name, kind, notnull, pk) for _, name, kind, notnull, _, pk in rows]
+
+
+def test_a_previous_release_database_upgrades_to_the_new_schema(tmp_path):
+    # tests/fixtures/previous_release.sqlite was written by 0.1.0 (schema 1); opening a
+    # copy for writing runs the upgrade step: same columns, views and indexes as a new file
+    import shutil
     from pathlib import Path
 
-    def schema(path):
-        rows = sqlite3.connect(path).execute("SELECT type, name, sql FROM sqlite_master")
-        return sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
-
-    ResultStore(tmp_path / "new.sqlite").close()
     old = Path(__file__).with_name("fixtures") / "previous_release.sqlite"
-    assert schema(tmp_path / "new.sqlite") == schema(old)
+    copy = tmp_path / "old.sqlite"
+    shutil.copy(old, copy)
+    assert sqlite3.connect(copy).execute("PRAGMA user_version").fetchone()[0] == 1
+    rows_before = sqlite3.connect(copy).execute("SELECT COUNT(*) FROM folds").fetchone()[0]
+    ResultStore(copy).close()
+    ResultStore(tmp_path / "new.sqlite").close()
+    assert sqlite3.connect(copy).execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+    for table in ("studies", "datasets", "trials", "folds", "curves", "environments"):
+        assert _columns(copy, table) == _columns(tmp_path / "new.sqlite", table), table
+    assert [r for r in _schema(copy) if r[0] != "table"] == [
+        r for r in _schema(tmp_path / "new.sqlite") if r[0] != "table"
+    ]
+    names = [c[0] for c in _columns(copy, "folds")]
+    assert names[-2:] == ["root_feature", "features_used"]
+    # the old rows are kept, with no tree shape recorded
+    conn = sqlite3.connect(copy)
+    assert conn.execute("SELECT COUNT(*) FROM folds").fetchone()[0] == rows_before
+    assert conn.execute("SELECT COUNT(*) FROM folds WHERE root_feature IS NOT NULL").fetchone()[
+        0
+    ] == 0
+    # the original file is untouched (schema 1), and is still read read-only
+    assert sqlite3.connect(old).execute("PRAGMA user_version").fetchone()[0] == 1
+
+
+def test_an_old_database_is_read_without_the_shape_columns(tmp_path):
+    import shutil
+    from pathlib import Path
+
+    from prunebench.results import load_folds
+
+    old = Path(__file__).with_name("fixtures") / "previous_release.sqlite"
+    copy = tmp_path / "old.sqlite"
+    shutil.copy(old, copy)
+    with ResultStore(copy, readonly=True) as store:
+        folds = load_folds(store)
+    assert "root_feature" not in folds and len(folds) > 0

@@ -274,3 +274,77 @@ def test_friedman_mse_is_a_regression_criterion_a_study_can_sweep(tmp_path):
         parse_study(
             'name = "x"\nseed = 1\ndatasets = ["iris"]\n[factors]\ncriterion = ["friedman_mse"]\n'
         )
+
+
+# ---- the [decision] section ------------------------------------------------------------
+
+def test_decision_defaults_follow_the_design():
+    from prunebench.study import decision_of_text
+
+    # DESIGN.md "Decision": error / mse, margins 0.01 of error and 1% of the unpruned MSE,
+    # alpha 0.05
+    assert decision_of_text(GOOD, ["classification"]) == {
+        "alpha": 0.05,
+        "metric": {"classification": "error"},
+        "margin": {"classification": 0.01},
+    }
+    both = decision_of_text("[decision]\nmetric = 'log_loss'\n", ["classification"])
+    assert both["margin"] == {"classification": 0.02}  # log loss's own default margin
+
+
+def test_decision_per_family_and_overall():
+    from prunebench.study import decision_of_text
+
+    text = (
+        "[decision]\nalpha = 0.1\nmargin = 0.03\n"
+        "[decision.classification]\nmetric = 'brier'\n"
+        "[decision.regression]\nmetric = 'mae'\nmargin = 0.05\n"
+    )
+    got = decision_of_text(text, ["classification", "regression"])
+    assert got == {
+        "alpha": 0.1,
+        "metric": {"classification": "brier", "regression": "mae"},
+        "margin": {"classification": 0.03, "regression": 0.05},
+    }
+    parse_study(GOOD + "\n[decision]\nmetric = 'accuracy'\nmargin = 0.02\nalpha = 0.5\n")
+
+
+@pytest.mark.parametrize(
+    "section, key, words",
+    [
+        ("alpha = 0.7", "decision.alpha", "(0, 0.5]"),
+        ("alpha = 0", "decision.alpha", "(0, 0.5]"),
+        ("alpha = true", "decision.alpha", "(0, 0.5]"),
+        ("margin = -0.01", "decision.margin", "> 0"),
+        ("margin = 'wide'", "decision.margin", "> 0"),
+        ("metric = 'mse'", "decision.metric", "not a classification metric"),
+        ("metric = 'bogus'", "decision.metric", "use one of error"),
+        ("cutoff = 1", "decision.cutoff", "not a decision key"),
+        ("[decision.regression]\nmetric = 'mse'", "decision.regression", "no regression"),
+        ("[decision.classification]\nalpha = 0.1", "decision.classification.alpha", "not a"),
+    ],
+)
+def test_bad_decision_sections_give_one_line_naming_the_key(section, key, words, tmp_path):
+    path = tmp_path / "s.toml"
+    path.write_text(GOOD + "\n[decision]\n" + section + "\n")
+    result = CliRunner().invoke(main, ["check", str(path)])
+    assert result.exit_code == 2
+    message = result.output.strip()
+    assert len(message.splitlines()) == 1
+    assert f"key '{key}'" in message and words in message and str(path) in message
+
+
+def test_a_metric_for_both_families_must_suit_both(tmp_path):
+    from prunebench.study import decision_of_text
+
+    with pytest.raises(StudyError, match=r"decision\.metric.*\[decision\.regression\]"):
+        decision_of_text("[decision]\nmetric = 'brier'\n", ["classification", "regression"])
+
+
+def test_levels_of_text_keep_the_files_order():
+    from prunebench.study import levels_of_text
+
+    levels = levels_of_text(GOOD, "classification")
+    assert levels["criterion"] == ["gini", "entropy"] and levels["max_depth"] == ["none", 3]
+    assert levels["rule"] == ["min", "1se", "0.5se"]
+    assert levels["min_samples_leaf"] == [1]  # the vocabulary's default
