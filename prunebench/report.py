@@ -148,7 +148,12 @@ def format_number(value, metric: str | None = None, signed: bool = False) -> str
     if not math.isfinite(value):
         return "∞" if value > 0 else "−∞"
     sign = "+" if signed else ""
-    text = f"{value:{sign}.3f}" if metric in _DECIMAL_METRICS else f"{value:{sign}.4g}"
+    if metric in _DECIMAL_METRICS:
+        text = f"{value:{sign}.3f}"
+    elif abs(value) >= 1e4:
+        text = f"{value:{sign},.0f}"  # 12,346 rather than 1.235e+04
+    else:
+        text = f"{value:{sign}.4g}"
     if re.fullmatch(r"[-+]?0(\.0*)?", text):
         text = text.lstrip("+-")  # no "-0.000"
     return text.replace("-", "−")
