@@ -150,7 +150,7 @@ def _alpha_axis(axis, positive_min: float, top: float) -> None:
     exponents = range(int(np.floor(np.log10(thresh))), int(np.ceil(np.log10(top))) + 1)
     ticks = [m * 10.0**e for e in exponents for m in (1, 2, 5)]
     powers = [t for t in ticks if thresh * 1.8 < t <= top * 1.05]
-    if len(powers) > 7:
+    if len(powers) > 4:  # 1, 2, 5 ticks would crowd: powers of ten only
         powers = [t for t in powers if f"{t:g}".lstrip("0.").startswith("1")]
     axis.set_major_locator(matplotlib.ticker.FixedLocator([0.0, *powers]))
     axis.set_major_formatter(

@@ -60,7 +60,7 @@ nav.contents a { margin-right: 14px; color: #2e4a3f; }
 h2 { border-bottom: 2px solid #c8b98a; padding-bottom: 3px; margin-top: 30px; color: #2e4a3f; }
 table { border-collapse: collapse; font-family: 'DejaVu Sans', Arial, sans-serif; font-size: 13px; }
 th, td { border-bottom: 1px solid #ddd6c3; padding: 3px 8px; text-align: right; }
-td { vertical-align: top; white-space: nowrap; } td.l { white-space: normal; }
+td { vertical-align: top; white-space: nowrap; } td.wrap { white-space: normal; }
 th { background: #efe9da; position: sticky; top: 0; }
 table.sortable th { cursor: pointer; } table.sortable th:hover { background: #e2d9c2; }
 td.l, th.l { text-align: left; }
@@ -176,8 +176,12 @@ def _table(
     formats: dict | None = None,
     table_id: str | None = None,
     sortable: bool = False,
+    wrap: tuple = (),
 ) -> str:
-    """An HTML table; ``formats`` maps a column to a function of the value."""
+    """An HTML table; ``formats`` maps a column to a function of the value.
+
+    Cells stay on one line except in the ``wrap`` columns (long free text).
+    """
     formats = formats or {}
     cls = ' class="sortable"' if sortable else ""
     tid = f' id="{table_id}"' if table_id else ""
@@ -189,7 +193,7 @@ def _table(
         cells = []
         for c, v in zip(frame.columns, row, strict=True):
             text = formats[c](v) if c in formats else _cell(v)
-            klass = "l" if c in left else ""
+            klass = ("l" if c in left else "") + (" wrap" if c in wrap else "")
             if c == "verdict" or c == "verdict on the metric":
                 klass += " " + _verdict_class(text)
             sort = ""
@@ -432,11 +436,19 @@ def render_report(inputs: dict) -> str:
         '<h2 id="comparison">Pruned against unpruned, per data set and configuration</h2>',
         _comparison(inputs["comparison"]),
         '<h2 id="datasets">Data sets</h2>'
-        + _table(inputs["datasets"], left=("name", "task", "source", "licence")),
+        + _table(
+            inputs["datasets"],
+            left=("name", "task", "source", "licence"),
+            wrap=("source", "licence"),
+        ),
         _failed(inputs["failed"]),
         '<h2 id="study-file">Study file</h2><pre>' + html.escape(info["study_text"]) + "</pre>",
         '<h2 id="environment">Environment</h2>'
-        + _table(inputs["environments"], left=tuple(inputs["environments"].columns)),
+        + _table(
+            inputs["environments"],
+            left=tuple(inputs["environments"].columns),
+            wrap=("platform",),
+        ),
         f"</main><script>{_SCRIPT}</script></body></html>",
     ]
     return "".join(parts)
@@ -666,6 +678,7 @@ def _factor_section(effects: pd.DataFrame, figures: dict) -> str:
             _table(
                 view,
                 left=("verdict on the metric", "contrast", "size verdict", "note"),
+                wrap=("verdict on the metric", "note"),
                 table_id=f"factors-{family}",
                 sortable=True,
             )
@@ -764,7 +777,13 @@ def _ranked(r: dict) -> str:
     )
 
 
+_VERDICT_ORDER = {"pruned better": 0, "unpruned better": 1}
+
+
 def _comparison(table: pd.DataFrame) -> str:
+    # decisive rows first (pruned better, then unpruned better), then by data set
+    table = table.assign(_order=table["verdict"].map(_VERDICT_ORDER).fillna(2))
+    table = table.sort_values(["_order", "dataset"], kind="stable").reset_index(drop=True)
     metric_of = table["metric"]
     view = pd.DataFrame(
         {

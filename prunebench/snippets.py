@@ -111,7 +111,7 @@ def long_label(config) -> str:
     if not c.pruned:
         return " · ".join([*head, "unpruned"])
     folds = "no CV" if str(c.rule).startswith("fixed") else f"{int(c.inner_folds)}-fold"
-    return " · ".join([*head, folds, str(c.rule), f"{c.prune_risk} risk"])
+    return " · ".join([*head, folds, str(c.rule), f"{str(c.prune_risk).replace('_', ' ')} risk"])
 
 
 def decision_sentence(config) -> str:
