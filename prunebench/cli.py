@@ -364,7 +364,7 @@ def figures(database, study, out) -> None:
     from .store import ResultStore
 
     with ResultStore(database, readonly=True) as store:
-        written = write_figures(store, load_folds(store, study), out)
+        written = write_figures(store, load_folds(store, study), out, study)
     click.echo(f"{len(written)} files written to {out}")
 
 
