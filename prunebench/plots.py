@@ -586,10 +586,18 @@ def critical_difference_diagram(ranked: dict, max_configs: int = MAX_CD_CONFIGS)
         ax.text(
             lo, -1.6, f"critical difference = {cd:.2f} ranks", ha="left", va="bottom", fontsize=8
         )
+    friedman = ranked.get("friedman") or {}
+    p = friedman.get("p_ff")
+    verdict = (
+        f"\nthe Friedman test cannot separate the configurations (p = {p:.2g}): the order is "
+        "not evidence"
+        if p is not None and p >= 0.05
+        else ""
+    )
     fig.suptitle(
         f"{ranked['family']}: critical-difference diagram ({ranked['metric']}, "
         f"{len(ranked['datasets'])} data sets; best {len(table)} of {k_all} configurations; "
-        "red bars join configurations the test cannot tell apart)",
+        f"red bars join configurations the test cannot tell apart){verdict}",
         fontsize=10,
     )
     fig.bars_drawn = bars  # for tests and readers of the figure object
