@@ -121,7 +121,37 @@ def _fold_rows(database: str, study: str | None):
     return open_results(database, study).fold_rows()
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+#: the commands in workflow order, as ``--help`` lists them (extend it when adding a command;
+#: a command missing here is listed after these, alphabetically)
+WORKFLOW = [
+    "check",
+    "conduct",
+    "progress",
+    "compare",
+    "effects",
+    "rank",
+    "recommend",
+    "figures",
+    "report",
+    "sql",
+    "export",
+    "datasets",
+    "demo",
+]
+
+
+class _WorkflowGroup(click.Group):
+    """A group that lists its commands in :data:`WORKFLOW` order."""
+
+    def list_commands(self, ctx) -> list[str]:
+        known = [name for name in WORKFLOW if name in self.commands]
+        return known + sorted(name for name in self.commands if name not in WORKFLOW)
+
+
+@click.group(
+    cls=_WorkflowGroup,
+    context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
+)
 @click.version_option(__version__, prog_name="prunebench")
 def main() -> None:
     """prunebench: evidence for how decision trees are grown and pruned by default.
