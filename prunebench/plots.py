@@ -594,6 +594,8 @@ def critical_difference_diagram(ranked: dict, max_configs: int = MAX_CD_CONFIGS)
         if p is not None and p >= 0.05
         else ""
     )
+    if len(ranked["datasets"]) < 2:
+        verdict = "\none data set: the ranks are that data set's order, no test across data sets"
     fig.suptitle(
         f"{ranked['family']}: critical-difference diagram ({ranked['metric']}, "
         f"{len(ranked['datasets'])} data sets; best {len(table)} of {k_all} configurations; "
