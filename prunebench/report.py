@@ -22,7 +22,8 @@ import numpy as np
 import pandas as pd
 
 from ._version import __version__
-from .effects import factor_effects
+from .effects import EFFECT_COLUMNS, factor_effects
+from .exceptions import PrunebenchError
 from .plots import FIGURES, contrast_name, families, family_figures
 from .ranks import ranking
 from .recommend import recommend
@@ -309,19 +310,34 @@ def decision_inputs(
     -------
     dict
         ``levels``, ``effects`` (DataFrame), ``recommendations`` (list of dict, each
-        with ``unpruned_leaves`` added) and ``own_data``.
+        with ``unpruned_leaves`` added), ``problems`` (family -> why the rule cannot
+        answer it yet), ``family_counts`` (family -> trial counts) and ``own_data``.
     """
     info = resolve_study(store, study)
     levels = study_levels(info["study_text"], folds)
-    effects = factor_effects(folds, levels, metric, margin, alpha)
     counts = _family_counts(store, info["study_id"])
-    recs = recommend(folds, metric, margin, alpha, trials=counts)
+    effects, recs, problems = [], [], {}
+    # one family at a time, so a family the rule cannot answer yet (a partly finished
+    # study) does not hide the other's decision
+    for family in families(folds):
+        rows = folds[folds["task"].map(family_of) == family]
+        try:
+            effects.append(factor_effects(rows, levels, metric, margin, alpha))
+            recs += recommend(rows, metric, margin, alpha, trials=counts)
+        except PrunebenchError as err:
+            problems[family] = str(err)
     for r in recs:
         r["unpruned_leaves"] = _unpruned_leaves(folds, r["family"], r["config"])
     return {
         "levels": levels,
-        "effects": effects,
+        "effects": (
+            pd.concat(effects, ignore_index=True)
+            if effects
+            else pd.DataFrame(columns=EFFECT_COLUMNS)
+        ),
         "recommendations": recs,
+        "problems": problems,
+        "family_counts": counts,
         "own_data": own_data(info["study_text"]),
     }
 
@@ -424,6 +440,10 @@ def render_report(inputs: dict) -> str:
         + "</nav>",
         '<h2 id="decision">Decision</h2>',
         *(_decision_box(r) for r in recs),
+        *(
+            _undecided_box(family, problem, inputs.get("family_counts", {}).get(family))
+            for family, problem in inputs.get("problems", {}).items()
+        ),
         f'<p class="caution"><b>Caution.</b> {html.escape(caution_for(inputs["own_data"]))}</p>',
         '<h2 id="factors">Factor effects</h2>',
         _factor_section(inputs["effects"], inputs["figures"]),
@@ -505,6 +525,15 @@ def _status(r: dict) -> str:
         f'<p class="status">This study is not finished for {r["family"]}: {done} trials done, '
         f"{failed} failed, {pending} pending. The recommendation below uses the finished "
         "trials only and may change.</p>"
+    )
+
+
+def _undecided_box(family: str, problem: str, counts: dict | None) -> str:
+    """The box of a family the decision rule cannot answer yet, saying why."""
+    return (
+        f'<div class="decision" id="decision-{family}"><h3>{family.capitalize()}</h3>'
+        + _status({"family": family, "trials": counts or {}})
+        + f"<p><b>No recommendation yet:</b> {html.escape(problem)}.</p></div>"
     )
 
 

@@ -329,3 +329,26 @@ def test_report_of_a_missing_database_is_one_line(tmp_path):
     )
     assert result.exit_code != 0 and "no such results database" in result.output
     assert not (tmp_path / "r.html").exists()
+
+
+def test_a_family_the_rule_cannot_answer_keeps_the_others_decision(mixed_db, monkeypatch):
+    from prunebench import report as report_module
+    from prunebench.effects import EffectsError
+
+    real = report_module.recommend
+
+    def refuses_regression(rows, *args, **kwargs):
+        if (rows["task"] == "regression").any():
+            raise EffectsError("no configuration has every outer fold of every data set")
+        return real(rows, *args, **kwargs)
+
+    monkeypatch.setattr(report_module, "recommend", refuses_regression)
+    with ResultStore(mixed_db, readonly=True) as store:
+        inputs = report_inputs(store)
+    text = render_report(inputs)
+    assert [r["family"] for r in inputs["recommendations"]] == ["classification"]
+    box = text[text.index('id="decision-regression"') :]
+    assert "No recommendation yet:</b> no configuration has every outer fold" in box[:600]
+    assert 'id="decision-classification"' in text and "Grow with" in text
+    # both families still get their figures
+    assert set(inputs["figures"]) == {"classification", "regression"}
