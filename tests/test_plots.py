@@ -227,3 +227,18 @@ def test_figures_command_writes_png_and_svg(small_db, tmp_path):
     expected = [f"classification_{n}.{e}" for n in plots.FIGURES for e in ("png", "svg")]
     assert files == sorted(expected)
     assert all((tmp_path / "figs" / f).stat().st_size > 5000 for f in files)
+
+
+def test_above_the_limit_the_factor_figure_replaces_the_cd_diagram(data, monkeypatch):
+    from prunebench.effects import factor_effects
+
+    folds, curves = data
+    levels = {"criterion": ["gini", "entropy"], "max_depth": [None, 3], "inner_folds": [3, 4]}
+    levels["rule"] = ["min", "1se"]
+    effects = factor_effects(folds, levels)
+    ranked = plots._main_ranking(folds)
+    both = plots.build_figures(folds, curves, ranked, effects=effects)
+    assert "critical_difference" in both and "factor_effects" in both  # 20 configurations
+    monkeypatch.setattr(plots, "MAX_CD_CONFIGS", len(ranked["table"]) - 1)
+    fewer = plots.build_figures(folds, curves, ranked, effects=effects)
+    assert "critical_difference" not in fewer and "factor_effects" in fewer
