@@ -666,7 +666,9 @@ def _factor_rows(effects: pd.DataFrame, family: str) -> pd.DataFrame:
                 "size 95% interval": (
                     "—" if s is None else f"[×{s['ratio_low']:.2f}, ×{s['ratio_high']:.2f}]"
                 ),
-                "size verdict": "—" if s is None else s["verdict"],
+                "size verdict": "—"
+                if s is None
+                else _VERDICT_WORDS.get(s["verdict"], s["verdict"]),
                 "data sets": int(r["n_datasets"]),
                 "note": r["note"] if isinstance(r["note"], str) else "",
             }
