@@ -15,19 +15,22 @@ import html
 import io
 import math
 import re
-import tomllib
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from ._version import __version__
-from .effects import EFFECT_COLUMNS, factor_effects
-from .exceptions import PrunebenchError
-from .plots import FIGURES, contrast_name, families, family_figures
+from .plots import (
+    FIGURES,
+    contrast_name,
+    decision_inputs,
+    family_figures,
+    own_data,
+    study_levels,
+)
 from .ranks import ranking
-from .recommend import recommend
-from .results import load_folds, resolve_study, study_overview
+from .results import load_folds, study_overview
 from .snippets import (
     CAUTION,
     caution_for,
@@ -38,13 +41,14 @@ from .snippets import (
 )
 from .stats import comparison
 from .store import ResultStore, utc_now
-from .vocabulary import FACTORS, Configuration, family_of
+from .vocabulary import Configuration
 
 __all__ = [
     "CAUTION",
     "build_report",
     "decision_inputs",
     "format_number",
+    "own_data",
     "render_report",
     "report_inputs",
     "study_levels",
@@ -229,129 +233,6 @@ def _png(fig) -> str:
 
 
 # ---- reading and computing ---------------------------------------------------------------
-
-
-def study_levels(study_text: str, folds: pd.DataFrame) -> dict:
-    """Family -> factor -> levels in the study file's order (the first is the reference).
-
-    Read from the stored study text's ``[factors]`` section (a family's own table
-    overrides the shared one); a factor the file does not name has the one level the
-    folds hold.
-
-    Parameters
-    ----------
-    study_text : str
-        The study file as stored with the study.
-    folds : DataFrame
-        From :func:`prunebench.results.load_folds`.
-
-    Returns
-    -------
-    dict
-    """
-    doc = tomllib.loads(study_text).get("factors", {})
-    shared = {k: v for k, v in doc.items() if not isinstance(v, dict)}
-    out = {}
-    for family in families(folds):
-        own = doc.get(family, {})
-        rows = folds[folds["task"].map(family_of) == family]
-        levels = {}
-        for factor in FACTORS:
-            listed = own.get(factor, shared.get(factor))
-            if isinstance(listed, list) and listed:
-                levels[factor] = listed
-            else:
-                seen = [None if _missing(v) else v for v in rows[factor].astype(object)]
-                levels[factor] = list(dict.fromkeys(seen))
-        out[family] = levels
-    return out
-
-
-def own_data(study_text: str) -> bool:
-    """Whether the study's data sets are the team's own (described by manifests)."""
-    datasets = tomllib.loads(study_text).get("datasets", [])
-    return bool(datasets) and all(isinstance(d, dict) for d in datasets)
-
-
-def _family_counts(store: ResultStore, study_id: str) -> dict[str, dict]:
-    rows = store.query(
-        "SELECT d.task, t.status, COUNT(*) AS n FROM trials t JOIN datasets d USING "
-        "(dataset_id) WHERE t.study_id = ? GROUP BY d.task, t.status",
-        [study_id],
-    )
-    out: dict[str, dict] = {}
-    for r in rows:
-        counts = out.setdefault(family_of(r["task"]), {"done": 0, "failed": 0, "pending": 0})
-        counts[r["status"]] = counts.get(r["status"], 0) + r["n"]
-    return out
-
-
-def decision_inputs(
-    store: ResultStore,
-    folds: pd.DataFrame,
-    study: str | None = None,
-    metric: str | None = None,
-    margin: float | None = None,
-    alpha: float = 0.05,
-) -> dict:
-    """The factor effects and the recommendations of a study's finished folds.
-
-    Parameters
-    ----------
-    store : ResultStore
-        Open for reading (the stored study text and the trial counts).
-    folds : DataFrame
-        From :func:`prunebench.results.load_folds`.
-    study : str, optional
-    metric, margin, alpha
-        As :func:`prunebench.effects.factor_effects`; defaults from the vocabulary.
-
-    Returns
-    -------
-    dict
-        ``levels``, ``effects`` (DataFrame), ``recommendations`` (list of dict, each
-        with ``unpruned_leaves`` added), ``problems`` (family -> why the rule cannot
-        answer it yet), ``family_counts`` (family -> trial counts) and ``own_data``.
-    """
-    info = resolve_study(store, study)
-    levels = study_levels(info["study_text"], folds)
-    counts = _family_counts(store, info["study_id"])
-    effects, recs, problems = [], [], {}
-    # one family at a time, so a family the rule cannot answer yet (a partly finished
-    # study) does not hide the other's decision
-    for family in families(folds):
-        rows = folds[folds["task"].map(family_of) == family]
-        try:
-            effects.append(factor_effects(rows, levels, metric, margin, alpha))
-            recs += recommend(rows, metric, margin, alpha, trials=counts)
-        except PrunebenchError as err:
-            problems[family] = str(err)
-    for r in recs:
-        r["unpruned_leaves"] = _unpruned_leaves(folds, r["family"], r["config"])
-    return {
-        "levels": levels,
-        "effects": (
-            pd.concat(effects, ignore_index=True)
-            if effects
-            else pd.DataFrame(columns=EFFECT_COLUMNS)
-        ),
-        "recommendations": recs,
-        "problems": problems,
-        "family_counts": counts,
-        "own_data": own_data(info["study_text"]),
-    }
-
-
-def _unpruned_leaves(folds: pd.DataFrame, family: str, config: dict) -> float:
-    """Mean over data sets of the unpruned tree's leaves with the config's growth levels."""
-    rows = folds[(folds["task"].map(family_of) == family) & (folds["arm"] == "unpruned")]
-    c = Configuration.of(config)
-    for name in ("criterion", "max_depth", "min_samples_leaf"):
-        value = getattr(c, name)
-        rows = rows[rows[name].isna()] if value is None else rows[rows[name] == value]
-    if rows.empty:
-        return float("nan")
-    return float(rows.groupby("dataset")["n_leaves"].mean().mean())
 
 
 def report_inputs(

@@ -332,17 +332,17 @@ def test_report_of_a_missing_database_is_one_line(tmp_path):
 
 
 def test_a_family_the_rule_cannot_answer_keeps_the_others_decision(mixed_db, monkeypatch):
-    from prunebench import report as report_module
+    from prunebench import plots
     from prunebench.effects import EffectsError
 
-    real = report_module.recommend
+    real = plots.recommend
 
     def refuses_regression(rows, *args, **kwargs):
         if (rows["task"] == "regression").any():
             raise EffectsError("no configuration has every outer fold of every data set")
         return real(rows, *args, **kwargs)
 
-    monkeypatch.setattr(report_module, "recommend", refuses_regression)
+    monkeypatch.setattr(plots, "recommend", refuses_regression)
     with ResultStore(mixed_db, readonly=True) as store:
         inputs = report_inputs(store)
     text = render_report(inputs)
