@@ -172,7 +172,37 @@ def _fold_rows(database: str, study: str | None):
     return open_results(database, study).fold_rows()
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+#: the commands in workflow order, as ``--help`` lists them (extend it when adding a command;
+#: a command missing here is listed after these, alphabetically)
+WORKFLOW = [
+    "check",
+    "conduct",
+    "progress",
+    "compare",
+    "effects",
+    "rank",
+    "recommend",
+    "figures",
+    "report",
+    "sql",
+    "export",
+    "datasets",
+    "demo",
+]
+
+
+class _WorkflowGroup(click.Group):
+    """A group that lists its commands in :data:`WORKFLOW` order."""
+
+    def list_commands(self, ctx) -> list[str]:
+        known = [name for name in WORKFLOW if name in self.commands]
+        return known + sorted(name for name in self.commands if name not in WORKFLOW)
+
+
+@click.group(
+    cls=_WorkflowGroup,
+    context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
+)
 @click.version_option(__version__, prog_name="prunebench")
 def main() -> None:
     """prunebench: evidence for how decision trees are grown and pruned by default.
@@ -532,24 +562,29 @@ def figures(database, study, out) -> None:
     from .store import ResultStore
 
     with ResultStore(database, readonly=True) as store:
-        written = write_figures(store, load_folds(store, study), out)
+        written = write_figures(store, load_folds(store, study), out, study)
     click.echo(f"{counted(len(written), 'file')} written to {out}")
 
 
 @main.command()
 @_results_options
+@_decision_options
 @click.option(
     "--out", required=True, type=click.Path(dir_okay=False), help="The HTML file to write."
 )
 @_reports_errors
-def report(database, study, out) -> None:
-    """Write one self-contained HTML report: figures, tables, study file, caution.
+def report(database, study, metric, margin, alpha, out) -> None:
+    """Write one self-contained HTML report: the decision first, then the evidence.
 
-    The file embeds everything it shows, opens offline, and is written whole or not at all.
+    A decision box per task family (the recommended default in a sentence, how sure it
+    is, the code to copy), the factor table and figure, the figures per family, the
+    ranking and comparison, the study file and the caution. Metric, margin and alpha
+    default to the study's [decision] section. The file embeds everything it shows,
+    opens offline, and is written whole or not at all.
     """
     from .report import write_report
 
-    path = write_report(database, out, study)
+    path = write_report(database, out, study, metric=metric, margin=margin, alpha=alpha)
     click.echo(f"report written to {path} ({path.stat().st_size // 1024} KiB)")
 
 

@@ -19,7 +19,12 @@ from .vocabulary import (
 
 __all__ = [
     "CAUTION",
+    "CAUTION_OWN_DATA",
     "ESTIMATORS",
+    "caution_for",
+    "decision_sentence",
+    "long_label",
+    "rule_words",
     "estimator_block",
     "estimator_for",
     "plain_json",
@@ -32,6 +37,117 @@ CAUTION = (
     "where the trees steer decisions about people (credit, health, insurance) follow your "
     "organisation's model-risk, fairness and legal review."
 )
+
+CAUTION_OWN_DATA = (
+    "This default was chosen on your own data, so it fits the data you have today: re-run the "
+    "study when the data drift or the population changes, keep a held-out check after "
+    "deployment, and where the trees steer decisions about people (credit, health, insurance) "
+    "follow your organisation's model-risk, fairness and legal review."
+)
+
+
+def caution_for(own_data: bool) -> str:
+    """The caution worded for benchmark data (False) or for the team's own data (True)."""
+    return CAUTION_OWN_DATA if own_data else CAUTION
+
+
+_RISK_WORDS = {
+    "error": "misclassification",
+    "impurity": "impurity",
+    "cost": "misclassification cost",
+    "squared_error": "squared error",
+}
+_CRITERION_WORDS = {
+    "log_loss": "log loss",
+    "squared_error": "squared error",
+    "absolute_error": "absolute error",
+    "friedman_mse": "Friedman's MSE",
+}
+
+
+def rule_words(rule: str) -> str:
+    """A selection rule in words: ``"min"`` -> "the minimum rule", ``"1se"`` -> ...
+
+    Parameters
+    ----------
+    rule : str
+        ``"min"``, a k-SE rule (``"1se"``, ``"0.5se"``) or a fixed rule (``"fixed0.01"``).
+
+    Returns
+    -------
+    str
+    """
+    if rule == "min":
+        return "the minimum rule"
+    if rule.endswith("se"):
+        k = rule[:-2]
+        return (
+            "the one-standard-error rule" if k in ("1", "1.0") else f"the {k}-standard-error rule"
+        )
+    if rule.startswith("fixed"):
+        return f"a fixed alpha of {rule[5:]} × the root's risk"
+    return rule
+
+
+def long_label(config) -> str:
+    """A configuration written out, e.g. "entropy · no cap · leaf ≥ 5 · 10-fold · min · error risk".
+
+    Parameters
+    ----------
+    config : Configuration, tuple or mapping
+
+    Returns
+    -------
+    str
+    """
+    c = Configuration.of(config)
+    depth = "no cap" if c.max_depth is None else f"depth ≤ {int(c.max_depth)}"
+    head = [
+        _CRITERION_WORDS.get(c.criterion, c.criterion),
+        depth,
+        f"leaf ≥ {int(c.min_samples_leaf)}",
+    ]
+    if not c.pruned:
+        return " · ".join([*head, "unpruned"])
+    folds = "no CV" if str(c.rule).startswith("fixed") else f"{int(c.inner_folds)}-fold"
+    return " · ".join([*head, folds, str(c.rule), f"{str(c.prune_risk).replace('_', ' ')} risk"])
+
+
+def decision_sentence(config) -> str:
+    """The recommended default in one plain sentence.
+
+    Parameters
+    ----------
+    config : Configuration, tuple or mapping
+
+    Returns
+    -------
+    str
+        E.g. "Grow with entropy, no depth cap, leaves of at least 5 rows; choose alpha by
+        10-fold CV with the minimum rule on misclassification."
+
+    Examples
+    --------
+    >>> decision_sentence({"criterion": "gini", "max_depth": 4, "min_samples_leaf": 1,
+    ...     "inner_folds": None, "rule": "unpruned", "prune_risk": None})
+    'Grow with gini, a depth cap of 4, leaves of at least 1 row; do not prune.'
+    """
+    c = Configuration.of(config)
+    depth = "no depth cap" if c.max_depth is None else f"a depth cap of {int(c.max_depth)}"
+    leaf = int(c.min_samples_leaf)
+    grow = (
+        f"Grow with {_CRITERION_WORDS.get(c.criterion, c.criterion)}, {depth}, "
+        f"leaves of at least {leaf} row{'s' if leaf != 1 else ''}"
+    )
+    if not c.pruned:
+        return grow + "; do not prune."
+    risk = _RISK_WORDS.get(c.prune_risk, c.prune_risk)
+    if str(c.rule).startswith("fixed"):
+        return f"{grow}; prune with {rule_words(c.rule)} (no CV), on {risk}."
+    return (
+        f"{grow}; choose alpha by {int(c.inner_folds)}-fold CV with {rule_words(c.rule)} on {risk}."
+    )
+
 
 #: family -> (prunebench's pruned estimator, scikit-learn's plain tree)
 ESTIMATORS = {

@@ -129,6 +129,70 @@ def _search_found_text(found: dict) -> list[str]:
     return lines
 
 
+#: metrics written with three decimals (rates, probabilities, log loss); others by size
+_DECIMAL_METRICS = {"error", "accuracy", "balanced_accuracy", "brier", "log_loss", "auc", "r2"}
+
+
+def _metric_number(value, metric: str, signed: bool = False) -> str:
+    """A metric's value as the tables print it: three decimals for rates and probabilities,
+    four significant figures (thousands separated above 10,000) for MSE-like losses; "-" when
+    missing; never "-0.000"."""
+    import pandas as pd
+
+    if value is None or pd.isna(value):
+        return "-"
+    sign = "+" if signed else ""
+    if metric in _DECIMAL_METRICS:
+        text = f"{value:{sign}.3f}"
+    elif abs(value) >= 1e4:
+        text = f"{value:{sign},.0f}"
+    else:
+        text = f"{value:{sign}.4g}"
+    return text.lstrip("+-") if text.lstrip("+-").strip("0.,") == "" else text
+
+
+def _aligned(rows: list[list[str]], left: int = 3) -> list[str]:
+    """Rows of cells in columns as wide as their widest cell, two spaces apart; the first
+    ``left`` columns left-aligned, the rest right-aligned."""
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    return [
+        "  ".join(
+            cell.ljust(w) if i < left else cell.rjust(w)
+            for i, (cell, w) in enumerate(zip(row, widths, strict=True))
+        ).rstrip()
+        for row in rows
+    ]
+
+
+def _conduct_rows(table) -> list[list[str]]:
+    rows = [
+        [
+            "dataset",
+            "rule",
+            "metric",
+            "unpruned",
+            "pruned",
+            "pruned - unpruned",
+            "leaves unpruned",
+            "leaves pruned",
+        ]
+    ]
+    for (dataset, rule, metric), row in table.iterrows():
+        rows.append(
+            [
+                str(dataset),
+                str(rule),
+                str(metric),
+                _metric_number(row["unpruned"], metric),
+                _metric_number(row["pruned"], metric),
+                _metric_number(row["pruned"] - row["unpruned"], metric, signed=True),
+                f"{row['leaves_unpruned']:.1f}",
+                f"{row['leaves_pruned']:.1f}",
+            ]
+        )
+    return rows
+
+
 def conduct_text(summary, table) -> str:
     """What ``prunebench conduct`` prints when the sweep ends.
 
@@ -148,16 +212,7 @@ def conduct_text(summary, table) -> str:
         lines += _search_found_text(summary.search)
     if table.empty:
         return "\n".join(lines)
-    lines.append(
-        f"\n{'dataset':<24} {'rule':<6} {'metric':<6} {'unpruned':>9} {'pruned':>9} "
-        f"{'leaves unpruned':>15} {'leaves pruned':>13}"
-    )
-    for (dataset, rule, metric), row in table.iterrows():
-        lines.append(
-            f"{dataset:<24} {rule:<6} {metric:<6} {row['unpruned']:>9.4f} "
-            f"{row['pruned']:>9.4f} {row['leaves_unpruned']:>15.1f} "
-            f"{row['leaves_pruned']:>13.1f}"
-        )
+    lines += [""] + _aligned(_conduct_rows(table))
     db = summary.database
     lines += [
         "(test metric and leaves: means over every configuration and outer fold)",

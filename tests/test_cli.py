@@ -19,6 +19,16 @@ def test_top_level_help_lists_every_command():
         assert re.search(rf"^\s+{name}\s", result.output, re.MULTILINE), name
 
 
+def test_help_lists_the_commands_in_workflow_order():
+    from prunebench.cli import WORKFLOW
+
+    output = CliRunner().invoke(main, ["--help"]).output
+    listed = re.findall(r"^  (\w+)\s", output.split("Commands:")[1], re.MULTILINE)
+    expected = [c for c in WORKFLOW if c in main.commands]
+    assert listed[: len(expected)] == expected and sorted(listed) == COMMANDS
+    assert listed.index("check") < listed.index("conduct") < listed.index("report")
+
+
 @pytest.mark.parametrize("name", COMMANDS)
 def test_every_command_has_help_text(name):
     result = CliRunner().invoke(main, [name, "--help"])

@@ -10,9 +10,14 @@ import pytest
 from prunebench import PrunedTreeClassifier, PrunedTreeRegressor
 from prunebench.snippets import (
     CAUTION,
+    CAUTION_OWN_DATA,
+    caution_for,
+    decision_sentence,
     estimator_block,
     estimator_for,
+    long_label,
     recommendation_records,
+    rule_words,
     study_fragment,
 )
 from prunebench.study import parse_study
@@ -123,3 +128,43 @@ def test_recommendation_records_are_json_with_code_and_caution():
     undecided = {**rec, "decided": False, "config": None, "reason": "no finished trial"}
     (record,) = recommendation_records([undecided])
     assert record["estimator"] is None and record["study_fragment"] is None
+
+
+
+
+def test_decision_sentence_in_plain_words():
+    config = {**PRUNED, "max_depth": None, "rule": "min", "prune_risk": "error"}
+    assert decision_sentence(config) == (
+        "Grow with entropy, no depth cap, leaves of at least 5 rows; choose alpha by "
+        "10-fold CV with the minimum rule on misclassification."
+    )
+    assert decision_sentence(PRUNED).startswith("Grow with entropy, a depth cap of 4,")
+    assert "the 0.5-standard-error rule on impurity" in decision_sentence(PRUNED)
+    one_se = decision_sentence({**PRUNED, "rule": "1se"})
+    assert "the one-standard-error rule" in one_se
+    assert decision_sentence(UNPRUNED) == (
+        "Grow with entropy, no depth cap, leaves of at least 5 rows; do not prune."
+    )
+    fixed = decision_sentence({**PRUNED, "rule": "fixed0.01", "inner_folds": None})
+    assert "a fixed alpha of 0.01 × the root's risk (no CV)" in fixed and "fold" not in fixed
+    single = decision_sentence({**UNPRUNED, "min_samples_leaf": 1})
+    assert "at least 1 row;" in single
+
+
+def test_long_label_writes_every_level_out():
+    assert long_label({**PRUNED, "max_depth": None, "rule": "min", "prune_risk": "error"}) == (
+        "entropy · no cap · leaf ≥ 5 · 10-fold · min · error risk"
+    )
+    assert long_label(PRUNED) == "entropy · depth ≤ 4 · leaf ≥ 5 · 10-fold · 0.5se · impurity risk"
+    assert long_label(UNPRUNED) == "entropy · no cap · leaf ≥ 5 · unpruned"
+    regression = {**PRUNED, "criterion": "squared_error", "prune_risk": "squared_error"}
+    assert long_label(regression).endswith("squared error risk")
+    assert long_label(regression).startswith("squared error · ")
+
+
+def test_rule_words_and_caution_for_the_data():
+    assert rule_words("min") == "the minimum rule"
+    assert rule_words("1se") == "the one-standard-error rule"
+    assert rule_words("2se") == "the 2-standard-error rule"
+    assert caution_for(False) == CAUTION and "benchmark data" in CAUTION
+    assert caution_for(True) == CAUTION_OWN_DATA and "your own data" in CAUTION_OWN_DATA

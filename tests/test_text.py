@@ -48,7 +48,7 @@ def test_conduct_text_has_one_row_per_dataset_rule_and_metric():
     )
     lines = conduct_text(summary, table).splitlines()
     row = next(line for line in lines if line.startswith("iris"))
-    assert row.split() == ["iris", "1se", "error", "0.1000", "0.0800", "12.0", "4.0"]
+    assert row.split() == ["iris", "1se", "error", "0.100", "0.080", "-0.020", "12.0", "4.0"]
     assert lines[-1].startswith("next: prunebench compare --db r.sqlite")
 
 
@@ -74,6 +74,39 @@ def test_counts_of_one_are_singular():
     )
     assert "2 trials in 1 group " in plan_text(many, [], Path("two.sqlite"), 1)
     assert "outer CV 2 repeats x 2 folds" in plan_text(many, [], Path("two.sqlite"), 1)
+
+
+def test_conduct_text_columns_aligned_and_formatted_per_metric():
+    summary = ConductSummary(database=Path("r.sqlite"), total=2, done=2)
+    table = pd.DataFrame(
+        {
+            "unpruned": [0.1, 6093.4, 123456.7],
+            "pruned": [0.1000001, 3512.25, 98765.4],
+            "leaves_unpruned": [12.0, 340.2, 80.0],
+            "leaves_pruned": [4.0, 5.5, 9.0],
+        },
+        index=pd.MultiIndex.from_tuples(
+            [
+                ("iris", "1se", "error"),
+                ("diabetes", "min", "mse"),
+                ("california_housing_with_a_long_name", "min", "mse"),
+            ]
+        ),
+    )
+    lines = conduct_text(summary, table).splitlines()
+    head = next(i for i, line in enumerate(lines) if line.startswith("dataset"))
+    block = lines[head : head + 4]
+    # headers never run together: every header starts where its column's cells end or begin
+    assert "  rule  " in block[0] and "leaves unpruned  leaves pruned" in block[0]
+    # right-aligned numbers end in the same column as their header
+    ends = {
+        line.rindex(cell) + len(cell)
+        for line, cell in zip(block, ["pruned", "4.0", "5.5", "9.0"], strict=True)
+    }
+    assert len(ends) == 1
+    assert block[1].split()[3:6] == ["0.100", "0.100", "0.000"]  # no "-0.000" or "+0.000"
+    assert block[2].split()[3:6] == ["6093", "3512", "-2581"]  # MSE: four figures
+    assert block[3].split()[3:6] == ["123,457", "98,765", "-24,691"]
 
 
 def test_plan_text_of_a_search_lists_its_space():
