@@ -110,7 +110,10 @@ def ranking(
     if isinstance(metric, dict):
         folds = folds[folds["task"].map(family_of).isin(metric)]
         parts = [
-            metric_rows(folds[folds["task"].map(family_of) == f], m) for f, m in metric.items()
+            metric_rows(folds[folds["task"].map(family_of) == f], m)
+            for f, m in metric.items()
+            # a family of the study with no finished trial yet has nothing to rank
+            if (folds["task"].map(family_of) == f).any()
         ]
         folds = pd.concat([p[0] for p in parts])
         tasks = {t: m for p in parts for t, m in p[1].items()}

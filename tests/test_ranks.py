@@ -180,3 +180,13 @@ def test_regret_best_is_not_picked_on_the_folds_it_scores():
     # there), odd folds (1, 3) against the best on even folds (config 0: 0.30 there)
     assert regret.loc["d0", "regret"] == pytest.approx(0.2 - 0.3)
     assert isinstance(regret, pd.DataFrame) and "1se" in regret.loc["d0", "best"]
+
+
+def test_a_family_with_no_finished_trial_is_left_out_of_the_ranking(folds):
+    # a mixed study stopped before its regression trials: the [decision] settings still name
+    # both families; ranking must rank the one that has rows, not fail on the other
+    classification_only = folds[folds["task"] != "regression"]
+    results = ranks.ranking(classification_only, {"classification": "error", "regression": "mse"})
+    assert [r["family"] for r in results] == ["classification"]
+    whole = ranks.ranking(folds, {"classification": "error", "regression": "mse"})
+    assert [r["family"] for r in whole] == ["classification", "regression"]
