@@ -115,7 +115,7 @@ def _reads_database(command):
     @_reports_errors
     def run(*args, database=None, source=None, **kwargs):
         from .exceptions import QueryError
-        from .results import results_path
+        from .query import results_path
 
         given = {results_path(p) for p in (database, source) if p is not None}
         if len(given) > 1:
@@ -600,12 +600,18 @@ def sql(database, query, as_json, as_csv) -> None:
     The file is opened read-only; statements that would write (INSERT, UPDATE, DELETE,
     DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, ...) are refused.
     """
-    from .results import run_query
-    from .text import query_text
+    # plain rows, no pandas: the command starts in a fraction of a second
+    from .query import csv_text, fetch, json_text, table_text
 
-    frame = run_query(database, query)
-    if not _emit(frame, as_json, as_csv):
-        click.echo(query_text(frame))
+    if as_json and as_csv:
+        raise click.UsageError("give --json or --csv, not both")
+    columns, rows = fetch(database, query)
+    if as_json:
+        click.echo(json_text(columns, rows))
+    elif as_csv:
+        click.echo(csv_text(columns, rows), nl=False)
+    else:
+        click.echo(table_text(columns, rows))
 
 
 @main.command()

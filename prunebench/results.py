@@ -15,14 +15,13 @@ and never open the database themselves.
 from __future__ import annotations
 
 import datetime as _dt
-import re
-import sqlite3
 from pathlib import Path
 
 import pandas as pd
 
-from .exceptions import QueryError, StoreError, parameter_error
-from .store import ResultStore, connect_readonly
+from .exceptions import QueryError, parameter_error
+from .query import fetch, results_path
+from .store import ResultStore
 from .vocabulary import (
     CLASSIFICATION,
     DEFAULT_METRIC,
@@ -61,57 +60,6 @@ VIEWS = ("arm_summary", "fold_differences")
 
 
 # ---- which file, which study -------------------------------------------------------------
-
-_SQLITE_HEADER = b"SQLite format 3\x00"
-
-
-def results_path(path: str | Path) -> Path:
-    """The results database to read for ``path``: the database itself, or a study file's.
-
-    A study file names its database (its ``database`` key, else ``<stem>.sqlite`` beside
-    it), so a reader may be given either.  Any other file that is not SQLite is refused
-    here as not a results database, rather than reported as damaged by SQLite.
-
-    Parameters
-    ----------
-    path : str or Path
-        A results database or a study file; a missing path is returned as it is (the
-        store says it is missing).
-
-    Returns
-    -------
-    Path
-
-    Raises
-    ------
-    StoreError
-        The file is neither SQLite nor a study file, or is a study file whose database
-        does not exist yet (the message names it).
-    """
-    path = Path(path)
-    try:
-        with open(path, "rb") as f:
-            head = f.read(len(_SQLITE_HEADER))
-    except OSError:
-        return path
-    if not head or head == _SQLITE_HEADER:
-        return path
-    from .study import study_database
-
-    database = study_database(path)
-    if database is None:
-        raise StoreError(
-            f"database={path}: not a results database (neither an SQLite file nor a study file)"
-        )
-    if not database.exists():
-        raise StoreError(
-            f"database={path} is a study file, not a results database; the database it "
-            f"names, {database}, does not exist (conduct the study first, or give the "
-            "database it was conducted into)"
-        )
-    return database
-
-
 
 def resolve_study(store: ResultStore, study: str | None = None) -> dict:
     """The ``studies`` row a question is about.
@@ -640,76 +588,13 @@ def open_results(path: str | Path, study: str | None = None) -> Results:
     return Results(path, study)
 
 
-_WRITES = re.compile(
-    r"^\s*(insert|update|delete|replace|drop|create|alter|attach|detach|vacuum|reindex|analyze|"
-    r"begin|commit|rollback|savepoint|release)\b",
-    re.IGNORECASE,
-)
-# pragmas that only read; those in the first set take a table or index name as argument
-_READ_PRAGMAS_WITH_ARGUMENT = {
-    "table_info",
-    "table_xinfo",
-    "index_list",
-    "index_info",
-    "index_xinfo",
-    "foreign_key_list",
-}
-_READ_PRAGMAS = _READ_PRAGMAS_WITH_ARGUMENT | {
-    "user_version",
-    "schema_version",
-    "integrity_check",
-    "quick_check",
-    "journal_mode",
-    "page_count",
-    "page_size",
-    "database_list",
-    "compile_options",
-    "table_list",
-}
-
-
-def _authorize(action, arg1, arg2, dbname, source):
-    # second line of defence behind the read-only connection: refuse every write action
-    denied = {
-        sqlite3.SQLITE_INSERT,
-        sqlite3.SQLITE_UPDATE,
-        sqlite3.SQLITE_DELETE,
-        sqlite3.SQLITE_ATTACH,
-        sqlite3.SQLITE_DETACH,
-        sqlite3.SQLITE_ALTER_TABLE,
-        sqlite3.SQLITE_CREATE_TABLE,
-        sqlite3.SQLITE_CREATE_INDEX,
-        sqlite3.SQLITE_CREATE_VIEW,
-        sqlite3.SQLITE_CREATE_TRIGGER,
-        sqlite3.SQLITE_DROP_TABLE,
-        sqlite3.SQLITE_DROP_INDEX,
-        sqlite3.SQLITE_DROP_VIEW,
-        sqlite3.SQLITE_DROP_TRIGGER,
-        sqlite3.SQLITE_CREATE_TEMP_TABLE,
-        sqlite3.SQLITE_CREATE_TEMP_VIEW,
-        sqlite3.SQLITE_TRANSACTION,
-    }
-    if action == sqlite3.SQLITE_UPDATE and arg1 == "sqlite_master" and source is None:
-        # SQLite reports its own schema columns as "updated" when it sets up a table-valued
-        # pragma function (pragma_table_info(...)); the connection is read-only regardless
-        return sqlite3.SQLITE_OK
-    if action in denied:
-        return sqlite3.SQLITE_DENY
-    if action == sqlite3.SQLITE_PRAGMA:
-        name = (arg1 or "").lower()
-        if name not in _READ_PRAGMAS or (
-            arg2 is not None and name not in _READ_PRAGMAS_WITH_ARGUMENT
-        ):
-            return sqlite3.SQLITE_DENY
-    return sqlite3.SQLITE_OK
-
-
 def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     """Run one read-only SQL statement against a results database.
 
     The file is opened read-only and every statement that would write (INSERT, UPDATE,
     DELETE, DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, transactions, …) is
-    refused with a message before it runs.
+    refused with a message before it runs (see :func:`prunebench.query.fetch`, which
+    does the reading; this adds the typed frame).
 
     Parameters
     ----------
@@ -720,47 +605,8 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
     -------
     DataFrame
     """
-    statement = sql.strip().rstrip(";").strip()
-    if not statement:
-        raise QueryError("the query is empty")
-    match = _WRITES.match(statement)
-    if match:
-        raise QueryError(
-            f"refused: {match.group(1).upper()} would change the results; "
-            "'prunebench sql' runs read-only queries"
-        )
-    pragma = re.match(r"^\s*pragma\s+(?:\w+\.)?(\w+)\s*(=|\()?", statement, re.IGNORECASE)
-    if pragma and (
-        pragma.group(1).lower() not in _READ_PRAGMAS
-        or pragma.group(2) == "="
-        or (pragma.group(2) == "(" and pragma.group(1).lower() not in _READ_PRAGMAS_WITH_ARGUMENT)
-    ):
-        raise QueryError(
-            f"refused: PRAGMA {pragma.group(1)} may change the database; "
-            "'prunebench sql' runs read-only queries"
-        )
-    conn = connect_readonly(path)
-    try:
-        conn.set_authorizer(_authorize)
-        try:
-            # SQLite itself refuses a second statement (a trailing comment is not one)
-            cursor = conn.execute(statement)
-        except sqlite3.ProgrammingError as err:
-            if "one statement" in str(err):
-                raise QueryError("give one statement at a time") from None
-            raise QueryError(f"the query failed: {err}") from None
-        except sqlite3.DatabaseError as err:
-            message = str(err)
-            if any(w in message for w in ("not authorized", "readonly", "may not be modified")):
-                raise QueryError(
-                    "refused: the statement would change the results; "
-                    "'prunebench sql' runs read-only queries"
-                ) from None
-            raise QueryError(f"the query failed: {message}") from None
-        columns = [c[0] for c in cursor.description or []]
-        return _typed_frame(cursor.fetchall(), columns)
-    finally:
-        conn.close()
+    columns, rows = fetch(path, sql)
+    return _typed_frame(rows, columns)
 
 
 def _typed_frame(rows: list[tuple], columns: list[str]) -> pd.DataFrame:

@@ -22,8 +22,6 @@ import sys
 from collections.abc import Callable
 from pathlib import Path
 
-import sqlite_utils
-
 from . import lockfile
 from ._version import __version__
 from .exceptions import StoreError
@@ -293,6 +291,8 @@ class ResultStore:
             else:
                 self.path.parent.mkdir(parents=True, exist_ok=True)
                 conn = sqlite3.connect(self.path, timeout=self.busy_timeout)
+            import sqlite_utils  # imported here: it imports pandas when pandas is installed
+
             self.db = sqlite_utils.Database(conn)
             self._prepare()
         except sqlite3.Error as err:
