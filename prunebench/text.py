@@ -20,7 +20,6 @@ __all__ = [
     "interactions_text",
     "plan_text",
     "progress_text",
-    "query_text",
     "rank_text",
     "recommend_text",
 ]
@@ -232,14 +231,6 @@ def progress_text(report: dict) -> str:
     ]
     lines += [f"  recent failure: {error}" for error in report["errors"]]
     return "\n".join(lines)
-
-
-def query_text(frame) -> str:
-    """The rows of a ``prunebench sql`` query as a table; NULL shows as a blank cell."""
-    if not len(frame):
-        return "(no rows)"
-    shown = frame.astype(object).where(frame.notna(), "")
-    return shown.to_string(index=False, max_colwidth=40)
 
 
 def demo_text(dataset: str, data, model, cv: int) -> str:
