@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import textwrap
 
-from .snippets import CAUTION, estimator_block, study_fragment
+from .snippets import CAUTION, estimator_block, long_label, study_fragment
 from .vocabulary import REGRESSION, config_label, counted, family_of, higher_is_better, is_relative
 
 __all__ = [
@@ -257,16 +257,19 @@ def demo_text(dataset: str, data, model, cv: int) -> str:
 
 
 def _compare_rows(rows, spec: str) -> list[str]:
+    """One row per data set and configuration: the verdict first, then the numbers, then the
+    configuration written out on its own (wrapped) line."""
     lines = []
     for _, r in rows.iterrows():
         verdict = {"pruned better": "pruned", "unpruned better": "unpr."}.get(r["verdict"], "-")
         ci = f"[{_fmt(r['ci_low'], '+' + spec)},{_fmt(r['ci_high'], '+' + spec)}]"
         lines.append(
-            f"{r['dataset'][:13]:<13} {config_label(r)[:23]:<23} "
+            f"{verdict:<6} {r['dataset'][:13]:<13} "
             f"{_fmt(r['mean_pruned'], spec):>7} {_fmt(r['mean_unpruned'], spec):>7} "
             f"{_fmt(r['diff'], '+' + spec):>7} {ci:>15} {_fmt(r['p_value'], '4.2f'):>4} "
-            f"{_fmt(r['p_holm'], '4.2f'):>4} {verdict:<6} {_fmt(r['leaves_saved'], '5.1f'):>5}"
+            f"{_fmt(r['p_holm'], '4.2f'):>4} {_fmt(r['leaves_saved'], '5.1f'):>5}"
         )
+        lines.append(_wrap(long_label(r), "       "))
     return lines
 
 
@@ -290,8 +293,8 @@ def compare_text(table, alpha: float = 0.05) -> str:
             )
         )
         lines.append(
-            f"{'dataset':<13} {'configuration':<23} {'pruned':>7} {'unprun.':>7} "
-            f"{'diff':>7} {'95% CI of diff':>15} {'p':>4} {'Holm':>4} {'better':<6} {'saved':>5}"
+            f"{'better':<6} {'dataset':<13} {'pruned':>7} {'unprun.':>7} "
+            f"{'diff':>7} {'95% CI of diff':>15} {'p':>4} {'Holm':>4} {'saved':>5}"
         )
         lines += _compare_rows(rows, spec)
         naive = ((rows["naive_ci_high"] < 0) | (rows["naive_ci_low"] > 0)).sum()

@@ -144,3 +144,19 @@ def test_effects_text_shows_the_ratio_both_intervals_and_the_verdict():
     assert "×0.63 [0.55, 0.72]" in row and row.split()[-2:] == ["undecided", "smaller"]
     assert "across 5 data sets; margin ±0.01" in text
     assert max(len(line) for line in text.splitlines()) <= 100
+
+
+def test_compare_text_puts_the_verdict_first_and_writes_labels_out(mixed_folds):
+    from prunebench.snippets import long_label
+    from prunebench.stats import comparison
+    from prunebench.text import WIDTH, compare_text
+
+    table = comparison(mixed_folds)
+    lines = compare_text(table).splitlines()
+    header = next(line for line in lines if line.startswith("better "))
+    assert header.split()[:2] == ["better", "dataset"]
+    first = lines.index(header) + 1
+    assert lines[first].split()[0] in {"pruned", "unpr.", "-"}
+    # the configuration follows its numbers, written out in full (wrapped, never cut)
+    assert lines[first + 1].strip() == long_label(table.iloc[0])
+    assert all(len(line) <= WIDTH for line in lines if line.startswith("       "))
