@@ -290,16 +290,20 @@ def conduct_table(path: str | Path, study_id: str) -> pd.DataFrame:
     -------
     DataFrame
         Index ``dataset``, ``rule``, ``metric``; columns ``unpruned``, ``pruned`` (mean
-        metric), ``leaves_unpruned`` and ``leaves_pruned``; empty when nothing finished.
+        metric), ``leaves_unpruned``, ``leaves_pruned`` and ``p_value`` (corrected resampled
+        t of the paired per-fold difference, averaged over the rule's configurations);
+        empty when nothing finished.
     """
     with ResultStore(path, readonly=True) as store:
         table = arm_means(store, study_id)
     if table.empty:
-        return pd.DataFrame(columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned"])
+        return pd.DataFrame(
+            columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned", "p_value"]
+        )
     wide = table.pivot_table(
         index=["dataset", "rule", "metric"], columns="arm", values=["value", "n_leaves"]
     )
-    return pd.DataFrame(
+    out = pd.DataFrame(
         {
             "unpruned": wide[("value", "unpruned")],
             "pruned": wide[("value", "pruned")],
@@ -307,6 +311,34 @@ def conduct_table(path: str | Path, study_id: str) -> pd.DataFrame:
             "leaves_pruned": wide[("n_leaves", "pruned")],
         }
     )
+    p = _conduct_p_values(path, study_id)
+    out["p_value"] = [p.get((d, r), float("nan")) for d, r, _ in out.index]
+    return out
+
+
+def _conduct_p_values(path: str | Path, study_id: str) -> dict:
+    """Corrected-t p of the mean pruned - unpruned difference per data set and rule.
+
+    Per outer fold the difference is averaged over the rule's configurations, so the folds
+    stay paired (every configuration sees the same outer test rows).
+    """
+    from .stats import corrected_ttest
+
+    with ResultStore(path, readonly=True) as store:
+        rows = pd.read_sql_query(
+            'SELECT fd.dataset, fd.rule, fd."repeat", fd.fold, AVG(fd.n_train) AS n_train, '
+            "AVG(fd.n_test) AS n_test, AVG(COALESCE(fd.error, fd.mse)) AS diff "
+            "FROM fold_differences fd JOIN trials t USING (trial_id) "
+            "WHERE t.study_id = ? AND t.status = 'done' "
+            'GROUP BY fd.dataset, fd.rule, fd."repeat", fd.fold',
+            store.db.conn,
+            params=[study_id],
+        )
+    return {
+        key: corrected_ttest(g["diff"], g["n_train"], g["n_test"]).p_value
+        for key, g in rows.groupby(["dataset", "rule"])
+        if len(g) > 1
+    }
 
 
 # ---- small readers for the figures, the report and the search ---------------------------

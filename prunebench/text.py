@@ -163,6 +163,13 @@ def _aligned(rows: list[list[str]], left: int = 3) -> list[str]:
     ]
 
 
+def _p_text(p) -> str:
+    """A p-value with a star below 0.05; a dash when there is none."""
+    if p is None or p != p:
+        return "-"
+    return f"{p:.3f}{'*' if p < 0.05 else ' '}"
+
+
 def _conduct_rows(table) -> list[list[str]]:
     rows = [
         [
@@ -172,6 +179,7 @@ def _conduct_rows(table) -> list[list[str]]:
             "unpruned",
             "pruned",
             "pruned - unpruned",
+            "p",
             "leaves unpruned",
             "leaves pruned",
         ]
@@ -185,6 +193,7 @@ def _conduct_rows(table) -> list[list[str]]:
                 _metric_number(row["unpruned"], metric),
                 _metric_number(row["pruned"], metric),
                 _metric_number(row["pruned"] - row["unpruned"], metric, signed=True),
+                _p_text(row.get("p_value")),
                 f"{row['leaves_unpruned']:.1f}",
                 f"{row['leaves_pruned']:.1f}",
             ]
@@ -214,7 +223,11 @@ def conduct_text(summary, table) -> str:
     lines += [""] + _aligned(_conduct_rows(table))
     db = summary.database
     lines += [
-        "(test metric and leaves: means over every configuration and outer fold)",
+        _wrap(
+            "(test metric and leaves: means over every configuration and outer fold; p: "
+            "corrected resampled t of the paired pruned - unpruned difference, * below 0.05, "
+            "not adjusted for the number of rows: 'prunebench compare' gives Holm's)"
+        ),
         f"next: prunebench compare --db {db}   |   prunebench recommend --db {db}   |   "
         f"prunebench report --db {db} --out report.html",
     ]

@@ -539,3 +539,25 @@ def test_recommend_on_an_unfinished_study_says_counts_first_and_names_undecided(
     assert by["regression"]["trials"] == got["regression"]
     assert by["classification"]["decided"] is True
     assert by["classification"]["trials"] == got["classification"]
+
+
+def test_conduct_table_p_values_are_the_corrected_t_of_the_paired_fold_differences(small_db):
+    # recomputed here from the folds (not the view the table reads): per outer fold the
+    # pruned - unpruned error averaged over the rule's configurations, then the corrected t
+    from prunebench.results import conduct_table, load_folds
+    from prunebench.stats import corrected_ttest
+
+    with ResultStore(small_db, readonly=True) as store:
+        folds = load_folds(store)
+        study_id = store.query("SELECT study_id FROM studies")[0]["study_id"]
+    table = conduct_table(small_db, study_id)
+    keys = ["trial_id", "repeat", "fold"]
+    pruned = folds[folds["arm"] == "pruned"].set_index(keys)
+    unpruned = folds[folds["arm"] == "unpruned"].set_index(keys)
+    diff = pruned.assign(d=pruned["error"] - unpruned["error"]).reset_index()
+    per_fold = diff.groupby(["dataset", "rule", "repeat", "fold"]).agg(
+        d=("d", "mean"), n_train=("n_train", "mean"), n_test=("n_test", "mean")
+    )
+    for (dataset, rule), g in per_fold.groupby(level=["dataset", "rule"]):
+        expected = corrected_ttest(g["d"], g["n_train"], g["n_test"]).p_value
+        assert table.loc[(dataset, rule, "error"), "p_value"] == pytest.approx(expected, abs=1e-12)
