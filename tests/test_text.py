@@ -43,12 +43,22 @@ def test_conduct_text_pivots_nothing_when_nothing_finished():
 def test_conduct_text_has_one_row_per_dataset_rule_and_metric():
     summary = ConductSummary(database=Path("r.sqlite"), total=2, done=2)
     table = pd.DataFrame(
-        {"unpruned": [0.1], "pruned": [0.08], "leaves_unpruned": [12.0], "leaves_pruned": [4.0]},
-        index=pd.MultiIndex.from_tuples([("iris", "1se", "error")]),
+        {
+            "unpruned": [0.1, 0.2],
+            "pruned": [0.08, 0.2],
+            "leaves_unpruned": [12.0, 9.0],
+            "leaves_pruned": [4.0, 9.0],
+            "p_value": [0.012, float("nan")],
+        },
+        index=pd.MultiIndex.from_tuples([("iris", "1se", "error"), ("wine", "min", "error")]),
     )
     lines = conduct_text(summary, table).splitlines()
     row = next(line for line in lines if line.startswith("iris"))
-    assert row.split() == ["iris", "1se", "error", "0.100", "0.080", "-0.020", "12.0", "4.0"]
+    assert row.split() == [
+        "iris", "1se", "error", "0.100", "0.080", "-0.020", "0.012*", "12.0", "4.0"
+    ]
+    row = next(line for line in lines if line.startswith("wine"))
+    assert row.split()[5:7] == ["0.000", "-"]  # no p where none could be computed
     assert lines[-1].startswith("next: prunebench compare --db r.sqlite")
 
 
