@@ -32,7 +32,7 @@ def test_every_public_name_resolves_and_comes_from_its_module():
     for name in prunebench.__all__:
         assert getattr(prunebench, name) is not None
     assert set(prunebench.__all__) <= set(dir(prunebench))
-    assert prunebench.__version__ == "0.1.0"
+    assert prunebench.__version__ == "0.2.0"
 
 
 def test_an_unknown_name_is_an_attribute_error():
