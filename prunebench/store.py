@@ -270,7 +270,8 @@ CREATE TABLE unpruned_folds (
     PRIMARY KEY (growth_id, "repeat", fold)
 ) WITHOUT ROWID;
 INSERT OR IGNORE INTO unpruned_folds
-SELECT t.growth_id, f."repeat", f.fold, f.n_train, f.n_test, f.test_fingerprint, {metrics},
+SELECT t.growth_id, f."repeat", f.fold, f.n_train, f.n_test, f.test_fingerprint,
+       {", ".join(f"f.{m}" for m in names)},
        f.n_leaves, f.depth, f.fit_seconds
 FROM folds f JOIN trials t USING (trial_id) WHERE f.arm = 'unpruned'
 ORDER BY t.growth_id, f."repeat", f.fold, f.rowid;
