@@ -483,7 +483,8 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
             cursor = conn.execute(statement)
         except sqlite3.DatabaseError as err:
             message = str(err)
-            if "not authorized" in message or "readonly" in message:
+            # "cannot modify folds because it is a view": folds is a view since schema 2
+            if "not authorized" in message or "readonly" in message or "cannot modify" in message:
                 raise QueryError(
                     "refused: the statement would change the results; "
                     "'prunebench sql' runs read-only queries"
