@@ -54,4 +54,5 @@ def test_a_search_configuration_is_a_one_trial_group_with_the_sweeps_ids():
     study = parse_study(STUDY)
     swept = next(t for t in study.trials() if t.rule == "1se" and t.max_depth is None)
     group = study.trial_group(swept.dataset, swept.levels())
-    assert group == TrialGroup.of([swept], study.growth_id(swept)) and group.trials[0].trial_id == swept.trial_id
+    assert group == TrialGroup.of([swept], study.growth_id(swept))
+    assert group.trials[0].trial_id == swept.trial_id
