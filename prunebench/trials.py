@@ -102,6 +102,11 @@ class TrialGroup:
         for factor, level in self.__dict__.get("growth", ()):
             if factor == name:
                 return level
+        # another factor reads as an attribute when every trial of the group has one level
+        if name in FACTORS:
+            levels = {getattr(t, name) for t in self.__dict__.get("trials", ())}
+            if len(levels) == 1:
+                return levels.pop()
         raise AttributeError(name)
 
     def growth_levels(self) -> dict:
