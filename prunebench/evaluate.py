@@ -204,7 +204,7 @@ def prepared_X(data: LoadedDataset) -> np.ndarray:
     key = data.fingerprint
     if _PREPARED.get("key") != key:
         _PREPARED.clear()
-        X = check_array(data.X, dtype=np.float32, order="C", ensure_all_finite=True)
+        X = check_array(data.X, dtype=np.float32, order="C", ensure_all_finite="allow-nan")
         _PREPARED.update(key=key, X=X)
     return _PREPARED["X"]
 
@@ -232,6 +232,15 @@ def balanced_accuracy(truth: np.ndarray, correct: np.ndarray, n_classes: int) ->
     return float(np.mean(hits[present] / total[present]))
 
 
+def _needs_check(X: np.ndarray) -> bool:
+    """Whether scikit-learn must check X itself: not float32, or with missing values.
+
+    Missing values need scikit-learn's own mask of the features that have them,
+    which only its checked path computes.
+    """
+    return X.dtype != np.float32 or bool(np.isnan(X).any())
+
+
 def _scores(model, X, y, classes) -> dict:
     """Every metric of the task family (``classes`` is None for regression)."""
     if classes is None:
@@ -241,7 +250,7 @@ def _scores(model, X, y, classes) -> dict:
 
 def _classification_scores(model, X, y, classes) -> dict:
     # X is float32 from prepared_X: scikit-learn's own check would convert it to that
-    proba_model = model.predict_proba(X, check_input=X.dtype != np.float32)
+    proba_model = model.predict_proba(X, check_input=_needs_check(X))
     # map the tree's classes onto the data set's (a class may be absent from training)
     proba = np.zeros((len(y), classes.size))
     proba[:, np.searchsorted(classes, model.classes_)] = proba_model
@@ -263,7 +272,7 @@ def _classification_scores(model, X, y, classes) -> dict:
 
 
 def _regression_scores(model, X, y) -> dict:
-    pred = model.predict(X, check_input=X.dtype != np.float32)
+    pred = model.predict(X, check_input=_needs_check(X))
     return {
         "mse": float(np.mean((pred - y) ** 2)),
         "mae": float(mean_absolute_error(y, pred)),
@@ -344,7 +353,7 @@ def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock
     clock.check()
     t0 = time.perf_counter()
     # X_train is validated float32 (prepared_X); y is still checked by the fit itself
-    full = clone(template).fit(X_train, y_train, check_input=X_train.dtype != np.float32)
+    full = clone(template).fit(X_train, y_train, check_input=_needs_check(X_train))
     fit_full = time.perf_counter() - t0
     inner_seed = derive_seed(settings.seed, data.fingerprint, repeat, fold, "inner")
     splitter_class = StratifiedKFold if is_classification(data.task) else KFold
