@@ -751,7 +751,9 @@ def run_query(path: str | Path, sql: str) -> pd.DataFrame:
             raise QueryError(f"the query failed: {err}") from None
         except sqlite3.DatabaseError as err:
             message = str(err)
-            if any(w in message for w in ("not authorized", "readonly", "may not be modified")):
+            # "cannot modify folds because it is a view": folds is a view since schema 2
+            refusals = ("not authorized", "readonly", "may not be modified", "cannot modify")
+            if any(w in message for w in refusals):
                 raise QueryError(
                     "refused: the statement would change the results; "
                     "'prunebench sql' runs read-only queries"

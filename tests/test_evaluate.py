@@ -243,3 +243,90 @@ def test_stored_folds_carry_the_pruned_trees_shape(small_db):
             assert root is None and features == []
         else:
             assert root in features and features == sorted(set(features))
+
+
+def test_trees_grown_on_the_float32_copy_are_the_trees_grown_on_the_data():
+    # scikit-learn converts X to float32 before growing (sklearn.tree._classes DTYPE), so the
+    # copy prepared once per data set must give the very same trees, node for node
+    from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+
+    from prunebench.datasets import load_dataset
+    from prunebench.evaluate import prepared_X
+
+    for name, model in (
+        ("breast_cancer", DecisionTreeClassifier),
+        ("diabetes", DecisionTreeRegressor),
+    ):
+        data = load_dataset(name)
+        X32 = prepared_X(data)
+        assert X32.dtype == np.float32 and X32.flags["C_CONTIGUOUS"]
+        assert data.X.dtype != np.float32  # the comparison is not trivially equal
+        for depth in (None, 4):
+            a = model(max_depth=depth, random_state=3).fit(data.X, data.y)
+            b = model(max_depth=depth, random_state=3)
+            b.fit(X32, data.y, check_input=False)
+            for attr in (
+                "children_left",
+                "children_right",
+                "feature",
+                "threshold",
+                "value",
+                "impurity",
+                "n_node_samples",
+                "weighted_n_node_samples",
+            ):
+                np.testing.assert_array_equal(getattr(a.tree_, attr), getattr(b.tree_, attr))
+            np.testing.assert_array_equal(a.predict(data.X), b.predict(X32, check_input=False))
+
+
+def test_balanced_accuracy_is_bit_identical_to_scikit_learns():
+    # reference: sklearn.metrics.balanced_accuracy_score (mean recall of the true classes)
+    from sklearn.metrics import balanced_accuracy_score
+
+    from prunebench.evaluate import balanced_accuracy
+
+    rng = np.random.default_rng(5)
+    for n, k in ((7, 2), (50, 3), (333, 5), (1000, 10)):
+        for _ in range(20):
+            y = rng.integers(0, k, n)
+            pred = np.where(rng.random(n) < 0.6, y, rng.integers(0, k, n))
+            labels = np.array([10 * c + 1 for c in range(k)])  # classes need not be 0..k-1
+            classes = np.unique(labels[y])
+            truth = np.searchsorted(classes, labels[y])
+            got = balanced_accuracy(truth, pred == y, classes.size)
+            assert got == balanced_accuracy_score(labels[y], labels[pred])  # exact, not approx
+
+
+def test_a_group_grows_each_tree_once_for_every_risk_rule_and_inner_fold_count():
+    study = parse_study(
+        STUDY.format(rules='["min", "1se", "fixed0.01"]')
+        .replace("inner_folds = [4]", 'inner_folds = [3, 4]\nprune_risk = ["error", "impurity"]')
+        .replace('criterion = ["gini", "entropy"]', 'criterion = ["gini"]')
+    )
+    data = study.datasets["breast_cancer"]
+    settings = _settings(study)
+    groups = study.groups()
+    assert len(groups) == 2 and all(len(g.trials) == 2 * 2 * 3 for g in groups)
+    result = evaluate_group(groups[0], data, settings)
+    # per outer fold: T_max once, then 3 + 4 fold trees, whatever the risks and rules
+    assert result.n_fits == 2 * 4 * (1 + 3 + 4)
+    assert len(result.unpruned) == 2 * 4 and len(result.pruned) == 12 * 2 * 4
+    # one curve per (inner folds, risk): the trials' group_id
+    assert len({c["group_id"] for c in result.curves}) == 2 * 2
+    # every trial's rows equal those of the trial evaluated on its own (the old grouping)
+    rows = {(r["trial_id"], r["repeat"], r["fold"], r["arm"]): r for r in result.folds}
+    for trial in groups[0].trials[::5]:
+        alone = evaluate_group(study.trial_group(trial.dataset, trial.levels()), data, settings)
+        for row in alone.folds:
+            mine = rows[(row["trial_id"], row["repeat"], row["fold"], row["arm"])]
+            assert {k: v for k, v in mine.items() if k != "fit_seconds"} == {
+                k: v for k, v in row.items() if k != "fit_seconds"
+            }
+
+
+def test_fixed_rules_grow_no_fold_trees():
+    study = parse_study(STUDY.format(rules='["fixed0.01", "fixed0"]'))
+    result = evaluate_group(study.groups()[0], study.datasets["breast_cancer"], _settings(study))
+    assert result.n_fits == 2 * 4  # T_max only
+    zero = [r for r in result.folds if r["arm"] == "pruned" and r["alpha"] == 0.0]
+    assert len(zero) == 2 * 4
