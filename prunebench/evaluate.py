@@ -20,12 +20,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from sklearn.base import clone
-from sklearn.metrics import balanced_accuracy_score, mean_absolute_error, r2_score
+from sklearn.metrics import mean_absolute_error, r2_score
 from sklearn.model_selection import KFold, RepeatedKFold, RepeatedStratifiedKFold, StratifiedKFold
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
+from .costs import node_class_costs
 from .datasets import LoadedDataset, is_classification
 from .exceptions import TrialTimeout
+from .losses import fold_metrics, leaf_probabilities
 from .selection import select_alpha
 from .vocabulary import CLASSIFICATION, REGRESSION, metric_names
 
@@ -42,8 +44,6 @@ __all__ = [
 
 CLASSIFICATION_METRICS = tuple(metric_names(CLASSIFICATION))
 REGRESSION_METRICS = tuple(metric_names(REGRESSION))
-# probabilities are clipped so one confident mistake gives a large, finite log loss
-_PROBA_CLIP = 1e-15
 
 
 @dataclass(frozen=True)
@@ -58,19 +58,43 @@ class EvaluationSettings:
         The outer scheme: ``repeats`` x ``folds``-fold cross-validation.
     time_limit : float, optional
         Seconds one trial group may take (checked before every tree fit).
+    costs : tuple of (str, labels, loss, priors)
+        One entry per data set with a ``[costs]`` table: its key, its sorted class
+        labels, the loss matrix in that order (tuple of rows: true class; columns:
+        predicted class) or None, and ``"data"``, ``"equal"`` or the priors.
+    smoothing : str, optional
+        Leaf-probability smoothing (``"laplace"``, ``"m<m>"``) of the stored
+        probability metrics and of the probability losses that choose alpha.
     """
 
     seed: int
     repeats: int
     folds: int
     time_limit: float | None = None
+    costs: tuple = ()
+    smoothing: str | None = None
 
     @classmethod
     def of(cls, study) -> EvaluationSettings:
         """The settings of a :class:`~prunebench.study.Study`."""
         return cls(
-            seed=study.seed, repeats=study.repeats, folds=study.folds, time_limit=study.time_limit
+            seed=study.seed,
+            repeats=study.repeats,
+            folds=study.folds,
+            time_limit=study.time_limit,
+            costs=tuple((key, *value) for key, value in sorted(study.costs.items())),
+            smoothing=getattr(study, "smoothing", None),
         )
+
+    def costs_of(self, dataset: str, classes: np.ndarray) -> tuple:
+        """``(loss_matrix or None, priors)`` of a data set, in ``classes`` order."""
+        for key, labels, loss, priors in self.costs:
+            if key == dataset:
+                if [str(c) for c in labels] != [str(c) for c in classes]:
+                    raise ValueError(f"the costs of {dataset!r} name other classes: {labels}")
+                loss = None if loss is None else np.asarray(loss, dtype=float)
+                return loss, priors if isinstance(priors, str) else np.asarray(priors, float)
+        return None, "data"
 
 
 def derive_seed(*parts: object) -> int:
@@ -136,32 +160,27 @@ class GroupResult:
     seconds: float = 0.0
 
 
-def _scores(model, X, y, classes) -> dict:
-    """Every metric of the task family (``classes`` is None for regression)."""
+def _scores(model, X, y, classes, costs=None, pred=None) -> dict:
+    """Every metric of the task family (``classes`` is None for regression).
+
+    ``costs`` is ``(loss_matrix, priors, smoothing)`` of the study for this data set;
+    ``pred`` the predicted labels when a loss matrix or priors decide them.
+    """
     if classes is None:
         return _regression_scores(model, X, y)
-    return _classification_scores(model, X, y, classes)
-
-
-def _classification_scores(model, X, y, classes) -> dict:
-    proba_model = model.predict_proba(X)
+    loss_matrix, _, smoothing = costs or (None, "data", None)
+    if smoothing is None:
+        proba_model = model.predict_proba(X)
+    else:
+        tree = model.tree_
+        counts = tree.value[:, 0, :] * tree.weighted_n_node_samples[:, None]
+        proba_model = leaf_probabilities(counts, smoothing)[model.apply(X)]
     # map the tree's classes onto the data set's (a class may be absent from training)
     proba = np.zeros((len(y), classes.size))
     proba[:, np.searchsorted(classes, model.classes_)] = proba_model
-    pred = model.classes_[np.argmax(proba_model, axis=1)]
-    truth = np.searchsorted(classes, y)
-    onehot = np.zeros_like(proba)
-    onehot[np.arange(len(y)), truth] = 1.0
-    clipped = np.clip(proba, _PROBA_CLIP, 1.0)
-    clipped /= clipped.sum(axis=1, keepdims=True)
-    accuracy = float(np.mean(pred == y))
-    return {
-        "error": 1.0 - accuracy,
-        "accuracy": accuracy,
-        "balanced_accuracy": float(balanced_accuracy_score(y, pred)),
-        "log_loss": float(-np.mean(np.log(clipped[np.arange(len(y)), truth]))),
-        "brier": float(np.mean(np.sum((proba - onehot) ** 2, axis=1))),
-    }
+    if pred is None:
+        pred = model.classes_[np.argmax(proba_model, axis=1)]
+    return fold_metrics(proba, y, classes, loss_matrix=loss_matrix, pred=pred)
 
 
 def _regression_scores(model, X, y) -> dict:
@@ -171,7 +190,6 @@ def _regression_scores(model, X, y) -> dict:
         "mae": float(mean_absolute_error(y, pred)),
         "r2": float(r2_score(y, pred)),
     }
-
 
 
 class _Clock:
@@ -209,10 +227,19 @@ def _tree_template(group, data: LoadedDataset, settings: EvaluationSettings, rep
         max_depth=group.max_depth,
         min_samples_leaf=group.min_samples_leaf,
         random_state=derive_seed(settings.seed, data.fingerprint, repeat, fold, "tree"),
+        **_class_weight(group),
     )
 
 
-def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock) -> _OuterFit:
+def _class_weight(group) -> dict:
+    """``class_weight="balanced"`` for the trees of a balanced group (classification only)."""
+    level = getattr(group, "class_weight", "none")
+    return {} if level in (None, "none") else {"class_weight": level}
+
+
+def _fit_outer_fold(
+    group, data, settings, repeat, fold, X_train, y_train, clock, costs=None
+) -> _OuterFit:
     """Grow T_max once, then choose every rule's alpha by inner K-fold CV (shared fits)."""
     template = _tree_template(group, data, settings, repeat, fold)
     clock.check()
@@ -232,8 +259,25 @@ def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock
         rules=group.rules,
         fitted=full,
         before_fit=clock.check,
+        select_by=getattr(group, "select_by", None),
+        **_selection_costs(costs),
     )
     return _OuterFit(full, selection, fit_full, time.perf_counter() - t0)
+
+
+def _selection_costs(costs) -> dict:
+    """The loss matrix, priors and smoothing keywords of ``select_alpha`` (none: defaults)."""
+    if costs is None:
+        return {}
+    loss_matrix, priors, smoothing = costs
+    return {"loss_matrix": loss_matrix, "priors": priors, "smoothing": smoothing}
+
+
+def _decided(costs) -> bool:
+    """Whether a loss matrix or priors decide the predicted classes."""
+    return costs is not None and (
+        costs[0] is not None or not isinstance(costs[1], str) or costs[1] != "data"
+    )
 
 
 def _arm_row(trial_id: str, common: dict, arm: str, model, scores: dict, alpha, seconds) -> dict:
@@ -249,10 +293,17 @@ def _arm_row(trial_id: str, common: dict, arm: str, model, scores: dict, alpha, 
     }
 
 
-def _fold_rows(group, common: dict, fit: _OuterFit, X_test, y_test, classes) -> list[dict]:
+def _fold_rows(
+    group, common: dict, fit: _OuterFit, X_test, y_test, classes, costs=None
+) -> list[dict]:
     """Both arms of every trial on one outer fold's test rows."""
     rows = []
-    scores_full = _scores(fit.full, X_test, y_test, classes)
+    decided = classes is not None and _decided(costs)
+    pred_full = None
+    if decided:
+        best = node_class_costs(fit.full, costs[0], costs[1], classes)[1]
+        pred_full = fit.full.classes_[best[fit.full.apply(X_test)]]
+    scores_full = _scores(fit.full, X_test, y_test, classes, costs, pred_full)
     for trial in group.trials:
         rows.append(
             _arm_row(trial.trial_id, common, "unpruned", fit.full, scores_full, 0.0, fit.fit_full)
@@ -261,7 +312,8 @@ def _fold_rows(group, common: dict, fit: _OuterFit, X_test, y_test, classes) -> 
         alpha = fit.selection.alpha(trial.rule)
         pruned = fit.selection.path.prune(alpha)
         seconds = fit.fit_full + fit.fit_inner + time.perf_counter() - t0
-        scores = _scores(pruned, X_test, y_test, classes)
+        pred = fit.selection.path.predict(X_test, alpha) if decided else None
+        scores = _scores(pruned, X_test, y_test, classes, costs, pred)
         rows.append(_arm_row(trial.trial_id, common, "pruned", pruned, scores, alpha, seconds))
     return rows
 
@@ -303,8 +355,11 @@ def evaluate_group(group, data: LoadedDataset, settings: EvaluationSettings) -> 
     classes = np.unique(data.y) if is_classification(data.task) else None
     result = GroupResult(group_id=group.group_id)
     X, y = data.X, data.y
+    costs = None
+    if classes is not None and (settings.costs or settings.smoothing):
+        costs = (*settings.costs_of(group.dataset, classes), settings.smoothing)
     for repeat, fold, train, test in outer_splits(data, settings):
-        fit = _fit_outer_fold(group, data, settings, repeat, fold, X[train], y[train], clock)
+        fit = _fit_outer_fold(group, data, settings, repeat, fold, X[train], y[train], clock, costs)
         result.n_fits += fit.selection.n_fits + 1
         common = {
             "repeat": repeat,
@@ -313,7 +368,7 @@ def evaluate_group(group, data: LoadedDataset, settings: EvaluationSettings) -> 
             "n_test": int(test.size),
             "test_fingerprint": rows_fingerprint(test),
         }
-        result.folds += _fold_rows(group, common, fit, X[test], y[test], classes)
+        result.folds += _fold_rows(group, common, fit, X[test], y[test], classes, costs)
         result.curves += _curve_rows(group.group_id, repeat, fold, fit.selection.curve)
     result.seconds = clock.elapsed()
     return result

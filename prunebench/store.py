@@ -38,7 +38,7 @@ __all__ = [
     "utc_now",
 ]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _SCHEMA_TEMPLATE = """
 CREATE TABLE studies (
@@ -78,6 +78,7 @@ CREATE TABLE trials (
     inner_folds INTEGER NOT NULL,
     rule TEXT NOT NULL,
     prune_risk TEXT NOT NULL,
+{trial_columns}
     status TEXT NOT NULL DEFAULT 'pending' CHECK (status IN ('pending', 'done', 'failed')),
     error TEXT,
     started TEXT,
@@ -125,16 +126,21 @@ CREATE TABLE environments (
     prunebench TEXT NOT NULL,
     platform TEXT NOT NULL
 );
+{views}"""
+
+_VIEWS_TEMPLATE = """
 CREATE VIEW arm_summary AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, f.arm, COUNT(*) AS n_folds,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, f.arm,
+       COUNT(*) AS n_folds,
        {metric_means},
        AVG(f.n_leaves) AS n_leaves, AVG(f.depth) AS depth, AVG(f.alpha) AS alpha
 FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
 GROUP BY t.trial_id, f.arm;
 CREATE VIEW fold_differences AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, p."repeat", p.fold, p.n_train, p.n_test,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, p."repeat", p.fold,
+       p.n_train, p.n_test,
        {metric_differences},
        p.n_leaves - u.n_leaves AS n_leaves, p.alpha AS alpha
 FROM folds p
@@ -156,13 +162,50 @@ def schema_sql() -> str:
     names = metric_names()
     return _SCHEMA_TEMPLATE.format(
         metric_columns="\n".join(f"    {m} REAL," for m in names),
+        trial_columns="\n".join(f"    {c}," for c in _TRIAL_COLUMNS_V2),
+        views=_views_sql(),
+    )
+
+
+def _views_sql() -> str:
+    names = metric_names()
+    return _VIEWS_TEMPLATE.format(
         metric_means=",\n       ".join(f"AVG(f.{m}) AS {m}" for m in names),
         metric_differences=",\n       ".join(f"p.{m} - u.{m} AS {m}" for m in names),
     )
 
 
-# schema version n -> SQL that brings a version-n file to n + 1
-_UPGRADES: dict[int, str] = {}
+# the metric columns of schema 1 (prunebench 0.1.0)
+_METRICS_V1 = ("error", "accuracy", "balanced_accuracy", "log_loss", "brier", "mse", "mae", "r2")
+# the factors schema 2 added to ``trials``, with the level every schema-1 trial had
+_TRIAL_COLUMNS_V2 = (
+    "select_by TEXT NOT NULL DEFAULT 'error'",
+    "class_weight TEXT NOT NULL DEFAULT 'none'",
+)
+
+
+def _upgrade_1_to_2() -> str:
+    """Schema 1 -> 2: the new metric columns, ``select_by`` and ``class_weight``, the views.
+
+    Every schema-1 trial chose alpha by ``error`` (``mse`` for regression) and grew
+    unweighted trees; its folds have no value (NULL) for the metrics added since.
+    """
+    added = [m for m in metric_names() if m not in _METRICS_V1]
+    return "\n".join(
+        [
+            "DROP VIEW arm_summary;",
+            "DROP VIEW fold_differences;",
+            *(f"ALTER TABLE folds ADD COLUMN {m} REAL;" for m in added),
+            *(f"ALTER TABLE trials ADD COLUMN {c};" for c in _TRIAL_COLUMNS_V2),
+            "UPDATE trials SET select_by = 'mse' WHERE dataset_id IN "
+            "(SELECT dataset_id FROM datasets WHERE task = 'regression');",
+            _views_sql(),
+        ]
+    )
+
+
+# schema version n -> a function giving the SQL that brings a version-n file to n + 1
+_UPGRADES = {1: _upgrade_1_to_2}
 
 
 
@@ -351,7 +394,7 @@ class ResultStore:
             self._wal()
             with conn:
                 conn.executescript(
-                    f"BEGIN; {_UPGRADES[version]} PRAGMA user_version = {version + 1}; COMMIT;"
+                    f"BEGIN; {_UPGRADES[version]()} PRAGMA user_version = {version + 1}; COMMIT;"
                 )
             version += 1
 

@@ -268,16 +268,45 @@ def test_a_lock_named_by_a_living_process_is_not_taken(tmp_path):
         pass
 
 
-def test_schema_is_the_previous_releases(tmp_path):
-    # the metric columns and views are generated from the vocabulary; a database written
-    # by 0.1.0 (tests/fixtures/previous_release.sqlite) must see the very same schema
+def _schema(path):
     import re
+
+    conn = sqlite3.connect(path)
+    rows = conn.execute("SELECT type, name, sql FROM sqlite_master WHERE type != 'table'")
+    others = sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
+    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+    columns = {
+        t: sorted(tuple(r[1:]) for r in conn.execute(f"PRAGMA table_info({t})")) for t in tables
+    }
+    return others, columns, conn.execute("PRAGMA user_version").fetchone()[0]
+
+
+def test_the_previous_release_upgrades_to_the_new_schema(tmp_path):
+    # a database written by 0.1.0 (tests/fixtures/previous_release.sqlite, schema 1) is
+    # upgraded on opening: the same columns (name, type, NOT NULL, default), indexes and
+    # views as a new database, its trials at the levels they had (alpha chosen by error
+    # or mse, unweighted trees) and NULL for the metrics it did not store
+    import shutil
     from pathlib import Path
 
-    def schema(path):
-        rows = sqlite3.connect(path).execute("SELECT type, name, sql FROM sqlite_master")
-        return sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
-
-    ResultStore(tmp_path / "new.sqlite").close()
     old = Path(__file__).with_name("fixtures") / "previous_release.sqlite"
-    assert schema(tmp_path / "new.sqlite") == schema(old)
+    assert _schema(old)[2] == 1
+    copy = shutil.copy(old, tmp_path / "old.sqlite")
+    before = sqlite3.connect(copy).execute("SELECT * FROM folds ORDER BY 1, 2, 3, 4").fetchall()
+    ResultStore(copy).close()
+    ResultStore(tmp_path / "new.sqlite").close()
+    assert _schema(copy) == _schema(tmp_path / "new.sqlite")
+    assert _schema(copy)[2] == SCHEMA_VERSION == 2
+    conn = sqlite3.connect(copy)
+    levels = conn.execute(
+        "SELECT d.task = 'regression', t.select_by, t.class_weight, COUNT(*) "
+        "FROM trials t JOIN datasets d USING (dataset_id) GROUP BY 1, 2, 3 ORDER BY 1"
+    ).fetchall()
+    assert [row[:3] for row in levels] == [(0, "error", "none"), (1, "mse", "none")]
+    old_columns = [r[1] for r in sqlite3.connect(old).execute("PRAGMA table_info(folds)")]
+    kept = conn.execute(
+        f"SELECT {', '.join(f'[{c}]' for c in old_columns)} FROM folds ORDER BY 1, 2, 3, 4"
+    ).fetchall()
+    assert kept == before  # the stored rows are untouched
+    assert conn.execute("SELECT COUNT(*) FROM folds WHERE auc IS NOT NULL").fetchone() == (0,)
+    assert conn.execute("SELECT COUNT(*) FROM arm_summary").fetchone()[0] > 0
