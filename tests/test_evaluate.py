@@ -233,7 +233,7 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
     import io
     import sqlite3
 
-    from sklearn.metrics import confusion_matrix, roc_auc_score
+    from sklearn.metrics import average_precision_score, confusion_matrix, roc_auc_score
     from sklearn.tree import DecisionTreeClassifier
 
     from prunebench.execute import Progress, conduct
@@ -242,11 +242,15 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
     study = parse_study(RARE)
     db = tmp_path / "rare.sqlite"
     conduct(study, db, progress=Progress(0, io.StringIO()))
-    rows = sqlite3.connect(db).execute(
-        "SELECT t.select_by, t.class_weight, f.arm, f.\"repeat\", f.fold, f.alpha, f.auc, "
-        "f.average_precision, f.expected_cost, f.error, f.n_leaves "
-        "FROM folds f JOIN trials t USING (trial_id)"
-    ).fetchall()
+    rows = (
+        sqlite3.connect(db)
+        .execute(
+            'SELECT t.select_by, t.class_weight, f.arm, f."repeat", f.fold, f.alpha, f.auc, '
+            "f.average_precision, f.expected_cost, f.error, f.n_leaves "
+            "FROM folds f JOIN trials t USING (trial_id)"
+        )
+        .fetchall()
+    )
     assert len(rows) == 4 * 3 * 2
     assert {(r[0], r[1]) for r in rows} == {
         ("error", "none"),
@@ -258,7 +262,7 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
     settings = EvaluationSettings.of(study)
     splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, settings)}
     L = np.array([[0.0, 1.0], [8.0, 0.0]])  # classes (negative, positive); rows: truth
-    for select_by, class_weight, arm, repeat, fold, alpha, auc, ap, cost, error, leaves in rows:
+    for _by, class_weight, arm, repeat, fold, alpha, auc, ap, cost, error, leaves in rows:
         train, test = splits[(repeat, fold)]
         full = DecisionTreeClassifier(
             max_depth=4,
@@ -273,6 +277,7 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
         if leaves > 1:
             # scikit-learn as reference library
             assert auc == pytest.approx(roc_auc_score(positive, proba), abs=1e-12)
+            assert ap == pytest.approx(average_precision_score(positive, proba), abs=1e-12)
         else:
             assert auc == pytest.approx(0.5)  # one score for every row: all pairs tied
         # expected cost by hand: the confusion counts weighted by the loss matrix, with
@@ -281,8 +286,9 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
         if arm == "unpruned":
             # T_max's own leaves (alpha 0 may already merge splits that gain nothing)
             pred = full.classes_[
-                (full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None]
-                 @ L).argmin(axis=1)[full.apply(data.X[test])]
+                (
+                    full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None] @ L
+                ).argmin(axis=1)[full.apply(data.X[test])]
             ]
         counts = confusion_matrix(data.y[test], pred, labels=["negative", "positive"])
         assert cost == pytest.approx((counts * L).sum() / test.size, abs=1e-12)

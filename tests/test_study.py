@@ -256,8 +256,8 @@ def _costs(costs: str, factors: str = "", more: str = "") -> str:
 def test_costs_are_read_per_dataset_in_class_order():
     study = parse_study(
         _costs(
-            f"smoothing = \"laplace\"\n[costs]\n{KEEL_LOSS}\npriors = {{ negative = 0.8, "
-            f"positive = 0.2 }}\n[costs.rare_logistic]\n{SIM_LOSS}\npriors = \"equal\"",
+            f'smoothing = "laplace"\n[costs]\n{KEEL_LOSS}\npriors = {{ negative = 0.8, '
+            f'positive = 0.2 }}\n[costs.rare_logistic]\n{SIM_LOSS}\npriors = "equal"',
             'select_by = ["error", "auc"]\nclass_weight = ["none", "balanced"]',
         )
     )
@@ -331,10 +331,10 @@ def test_costs_are_read_per_dataset_in_class_order():
             "",
             "key 'costs.yeast4.priors.rare': 'rare' is not a class of dataset 'yeast4'",
         ),
-        ("[costs.yeast4]\npriors = \"sample\"", "", "", "key 'costs.yeast4.priors': must be"),
-        ("[costs.iris]\npriors = \"equal\"", "", "", "key 'costs.iris': is not a dataset"),
+        ('[costs.yeast4]\npriors = "sample"', "", "", "key 'costs.yeast4.priors': must be"),
+        ('[costs.iris]\npriors = "equal"', "", "", "key 'costs.iris': is not a dataset"),
         (
-            "[costs.diabetes]\npriors = \"equal\"",
+            '[costs.diabetes]\npriors = "equal"',
             "",
             ', "diabetes"',
             "key 'costs.diabetes': dataset 'diabetes' is not a classification dataset",

@@ -166,3 +166,20 @@ def test_an_added_metric_reaches_folds_compare_and_export(doubled_error, tmp_pat
         with open(out / f"{name}.csv", newline="") as f:
             table = list(csv.DictReader(f))
         assert all(float(r["doubled_error"]) == pytest.approx(2 * float(r["error"])) for r in table)
+
+
+def test_select_by_levels_are_the_scoring_engines_and_defaults_compare_equal():
+    from prunebench.scoring import SELECT_BY
+
+    assert vocabulary.SELECT_BY == SELECT_BY
+    assert vocabulary.FACTORS["select_by"].levels == SELECT_BY
+    assert not vocabulary.FACTORS["select_by"].changes_tree
+    # a study that names the default levels describes the same configuration as one that
+    # does not name them; other levels show in the label
+    old = Configuration("gini", None, 1, 10, "1se", "error")
+    assert Configuration("gini", None, 1, 10, "1se", "error", "error", "none") == old
+    assert Configuration.of({**old.levels(), "select_by": "mse"}) == old
+    new = Configuration("gini", 4, 1, 10, "min", "cost", "auc", "balanced")
+    assert new.label() == "gini d=4 l=1 cw=bal k=10 min cost by=auc"
+    assert new.unpruned() == Configuration("gini", 4, 1, None, "unpruned", None, None, "balanced")
+    assert new.unpruned().label() == "gini d=4 l=1 cw=bal unpruned"
