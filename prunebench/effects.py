@@ -72,7 +72,7 @@ __all__ = [
 #: the factor columns of a configuration, in the order of the store
 FACTORS = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
 #: metrics where larger is better; their loss is ``1 - metric``
-HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2", "auc"}
+HIGHER_IS_BETTER = {"accuracy", "balanced_accuracy", "r2", "auc", "average_precision"}
 #: metrics whose loss is divided by the data set's mean unpruned loss (margin = share of it)
 RELATIVE_METRICS = {"mse", "mae"}
 #: default practical-equivalence margins in each metric's loss units (DESIGN.md "Decision"):

@@ -279,8 +279,7 @@ def _plain(value: object) -> object:
     return value
 
 
-# the level a configuration stores as None: a study that does not name the factor and
-# one that names its default level describe the same trees
+# levels a label leaves out: the defaults, which every study had before these factors
 _DEFAULT_LEVELS = {"select_by": ("error", "mse"), "class_weight": ("none",)}
 
 
@@ -290,9 +289,8 @@ class Configuration:
 
     ``rule == "unpruned"`` names the unpruned tree of the growth levels; its
     ``inner_folds``, ``prune_risk`` and ``select_by`` are None.  ``max_depth`` None is
-    unlimited.  ``select_by`` and ``class_weight`` are None at their defaults
-    (``error``/``mse`` and ``none``), so the configurations of studies that do not
-    name them equal those that name the default.
+    unlimited.  ``select_by`` and ``class_weight`` are None when not known (a row
+    or tuple without them); labels leave out their default levels.
     """
 
     criterion: str
@@ -303,11 +301,6 @@ class Configuration:
     prune_risk: str | None
     select_by: str | None = None
     class_weight: str | None = None
-
-    def __post_init__(self) -> None:
-        for name, defaults in _DEFAULT_LEVELS.items():
-            if getattr(self, name) in defaults:
-                object.__setattr__(self, name, None)
 
     @classmethod
     def of(cls, levels) -> Configuration:
@@ -355,13 +348,13 @@ class Configuration:
         depth = "none" if self.max_depth is None else int(self.max_depth)
         criterion = _SHORT.get(self.criterion, self.criterion)
         head = f"{criterion} d={depth} l={int(self.min_samples_leaf)}"
-        if self.class_weight is not None:
+        if self.class_weight not in (None, *_DEFAULT_LEVELS["class_weight"]):
             head += f" cw={_SHORT.get(self.class_weight, self.class_weight)}"
         if not self.pruned:
             return f"{head} unpruned"
         risk = _SHORT.get(self.prune_risk, self.prune_risk)
         label = f"{head} k={int(self.inner_folds)} {self.rule} {risk}"
-        if self.select_by is not None:
+        if self.select_by not in (None, *_DEFAULT_LEVELS["select_by"]):
             label += f" by={_SHORT.get(self.select_by, self.select_by)}"
         return label
 

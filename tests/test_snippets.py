@@ -107,3 +107,25 @@ def test_recommendation_records_are_json_with_code_and_caution():
     assert record["caution"] == "Caution: " + CAUTION
     assert _model(record["estimator"]).get_params()["rule"] == "0.5se"
     assert tomllib.loads(record["study_fragment"])["factors"]["classification"]["rule"] == ["0.5se"]
+
+
+def test_other_losses_and_class_weights_reach_the_estimator_and_the_fragment():
+    config = {
+        "criterion": "gini",
+        "max_depth": 4,
+        "min_samples_leaf": 1,
+        "inner_folds": 5,
+        "rule": "min",
+        "prune_risk": "cost",
+        "select_by": "auc",
+        "class_weight": "balanced",
+    }
+    rec = {"family": "classification", "config": config}
+    block = estimator_block(rec)
+    assert "select_by='auc'" in block and "class_weight='balanced'" in block
+    namespace: dict = {}
+    exec(block, namespace)  # the block builds the estimator it names
+    model = namespace["model"]
+    assert (model.select_by, model.class_weight) == ("auc", "balanced")
+    levels = tomllib.loads(study_fragment(rec))["factors"]["classification"]
+    assert (levels["select_by"], levels["class_weight"]) == (["auc"], ["balanced"])
