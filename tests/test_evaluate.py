@@ -295,3 +295,35 @@ def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
         assert error == pytest.approx((counts.sum() - np.trace(counts)) / test.size, abs=1e-12)
     # the loss matrix makes the trees flag rows: the cheapest class is not the majority's
     assert any(c != e for *_, c, e, _ in rows)
+
+
+def test_laplace_smoothing_reaches_the_stored_probability_metrics():
+    from sklearn.tree import DecisionTreeClassifier
+
+    text = STUDY.format(rules='["min"]').replace("seed = 11", 'seed = 11\nsmoothing = "laplace"')
+    study = parse_study(text)
+    plain = _study('["min"]')
+    data = study.datasets["breast_cancer"]
+    group = study.groups()[0]
+    smoothed = evaluate_group(group, data, EvaluationSettings.of(study))
+    raw = evaluate_group(plain.groups()[0], data, EvaluationSettings.of(plain))
+    splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, _settings(study))}
+    for row, raw_row in zip(smoothed.folds, raw.folds, strict=True):
+        if row["arm"] != "unpruned":
+            continue
+        train, test = splits[(row["repeat"], row["fold"])]
+        full = DecisionTreeClassifier(
+            criterion=group.criterion,
+            max_depth=group.max_depth,
+            random_state=derive_seed(
+                study.seed, data.fingerprint, row["repeat"], row["fold"], "tree"
+            ),
+        ).fit(data.X[train], data.y[train])
+        counts = full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None]
+        # Laplace by hand: (n_c + 1) / (n + 2) in the row's leaf
+        p = ((counts + 1) / (counts.sum(axis=1, keepdims=True) + 2))[full.apply(data.X[test])]
+        # scikit-learn as reference library
+        assert row["log_loss"] == pytest.approx(log_loss(data.y[test], p), rel=1e-12)
+        assert row["brier"] == pytest.approx(2 * brier_score_loss(data.y[test], p[:, 1]), rel=1e-12)
+        # pure leaves no longer rule the log loss; the predictions are the same
+        assert row["log_loss"] < raw_row["log_loss"] and row["error"] == raw_row["error"]
