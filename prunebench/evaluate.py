@@ -32,8 +32,10 @@ from sklearn.model_selection import KFold, RepeatedKFold, RepeatedStratifiedKFol
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 from sklearn.utils import check_array
 
+from .costs import node_class_costs
 from .datasets import LoadedDataset, is_classification
 from .exceptions import TrialTimeout
+from .losses import fold_metrics, leaf_probabilities
 from .selection import parse_rule, select_alphas
 from .vocabulary import CLASSIFICATION, DEFAULT_METRIC, REGRESSION, family_of, metric_names
 
@@ -54,8 +56,6 @@ __all__ = [
 
 CLASSIFICATION_METRICS = tuple(metric_names(CLASSIFICATION))
 REGRESSION_METRICS = tuple(metric_names(REGRESSION))
-# probabilities are clipped so one confident mistake gives a large, finite log loss
-_PROBA_CLIP = 1e-15
 
 
 @dataclass(frozen=True)
@@ -70,19 +70,43 @@ class EvaluationSettings:
         The outer scheme: ``repeats`` x ``folds``-fold cross-validation.
     time_limit : float, optional
         Seconds one trial group may take (checked before every tree fit).
+    costs : tuple of (str, labels, loss, priors)
+        One entry per data set with a ``[costs]`` table: its key, its sorted class
+        labels, the loss matrix in that order (tuple of rows: true class; columns:
+        predicted class) or None, and ``"data"``, ``"equal"`` or the priors.
+    smoothing : str, optional
+        Leaf-probability smoothing (``"laplace"``, ``"m<m>"``) of the stored
+        probability metrics and of the probability losses that choose alpha.
     """
 
     seed: int
     repeats: int
     folds: int
     time_limit: float | None = None
+    costs: tuple = ()
+    smoothing: str | None = None
 
     @classmethod
     def of(cls, study) -> EvaluationSettings:
         """The settings of a :class:`~prunebench.study.Study`."""
         return cls(
-            seed=study.seed, repeats=study.repeats, folds=study.folds, time_limit=study.time_limit
+            seed=study.seed,
+            repeats=study.repeats,
+            folds=study.folds,
+            time_limit=study.time_limit,
+            costs=tuple((key, *value) for key, value in sorted(study.costs.items())),
+            smoothing=getattr(study, "smoothing", None),
         )
+
+    def costs_of(self, dataset: str, classes: np.ndarray) -> tuple:
+        """``(loss_matrix or None, priors)`` of a data set, in ``classes`` order."""
+        for key, labels, loss, priors in self.costs:
+            if key == dataset:
+                if [str(c) for c in labels] != [str(c) for c in classes]:
+                    raise ValueError(f"the costs of {dataset!r} name other classes: {labels}")
+                loss = None if loss is None else np.asarray(loss, dtype=float)
+                return loss, priors if isinstance(priors, str) else np.asarray(priors, float)
+        return None, "data"
 
 
 def derive_seed(*parts: object) -> int:
@@ -256,34 +280,29 @@ def _needs_check(X: np.ndarray) -> bool:
     return X.dtype != np.float32 or bool(np.isnan(X).any())
 
 
-def _scores(model, X, y, classes) -> dict:
-    """Every metric of the task family (``classes`` is None for regression)."""
+def _scores(model, X, y, classes, costs=None, pred=None) -> dict:
+    """Every metric of the task family (``classes`` is None for regression).
+
+    ``costs`` is ``(loss_matrix, priors, smoothing)`` of the study for this data set;
+    ``pred`` the predicted labels when a loss matrix or priors decide them.
+    """
     if classes is None:
         return _regression_scores(model, X, y)
-    return _classification_scores(model, X, y, classes)
-
-
-def _classification_scores(model, X, y, classes) -> dict:
     # X is float32 from prepared_X: scikit-learn's own check would convert it to that
-    proba_model = model.predict_proba(X, check_input=_needs_check(X))
+    check = _needs_check(X)
+    loss_matrix, _, smoothing = costs or (None, "data", None)
+    if smoothing is None:
+        proba_model = model.predict_proba(X, check_input=check)
+    else:
+        tree = model.tree_
+        counts = tree.value[:, 0, :] * tree.weighted_n_node_samples[:, None]
+        proba_model = leaf_probabilities(counts, smoothing)[model.apply(X, check_input=check)]
     # map the tree's classes onto the data set's (a class may be absent from training)
     proba = np.zeros((len(y), classes.size))
     proba[:, np.searchsorted(classes, model.classes_)] = proba_model
-    pred = model.classes_[np.argmax(proba_model, axis=1)]
-    truth = np.searchsorted(classes, y)
-    onehot = np.zeros_like(proba)
-    onehot[np.arange(len(y)), truth] = 1.0
-    clipped = np.clip(proba, _PROBA_CLIP, 1.0)
-    clipped /= clipped.sum(axis=1, keepdims=True)
-    correct = pred == y
-    accuracy = float(np.mean(correct))
-    return {
-        "error": 1.0 - accuracy,
-        "accuracy": accuracy,
-        "balanced_accuracy": balanced_accuracy(truth, correct, classes.size),
-        "log_loss": float(-np.mean(np.log(clipped[np.arange(len(y)), truth]))),
-        "brier": float(np.mean(np.sum((proba - onehot) ** 2, axis=1))),
-    }
+    if pred is None:
+        pred = model.classes_[np.argmax(proba_model, axis=1)]
+    return fold_metrics(proba, y, classes, loss_matrix=loss_matrix, pred=pred)
 
 
 def _regression_scores(model, X, y) -> dict:
@@ -349,20 +368,27 @@ class _OuterFit:
         return self.selections[key]
 
 
-def _tree_params(group) -> dict:
-    # a growth level spelled "none" (max_depth, class_weight) is scikit-learn's None
-    return {k: (None if v == "none" else v) for k, v in group.growth}
+def _tree_params(group, classification: bool = True) -> dict:
+    # a growth level spelled "none" (max_depth, class_weight) is scikit-learn's None;
+    # a regression tree has no class_weight (its one level is "none")
+    params = {k: (None if v == "none" else v) for k, v in group.growth}
+    if not classification and params.get("class_weight", None) is None:
+        params.pop("class_weight", None)
+    return params
 
 
 def _tree_template(group, data: LoadedDataset, settings: EvaluationSettings, repeat, fold):
-    tree_class = DecisionTreeClassifier if is_classification(data.task) else DecisionTreeRegressor
+    classification = is_classification(data.task)
+    tree_class = DecisionTreeClassifier if classification else DecisionTreeRegressor
     return tree_class(
-        **_tree_params(group),
+        **_tree_params(group, classification),
         random_state=derive_seed(settings.seed, data.fingerprint, repeat, fold, "tree"),
     )
 
 
-def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock) -> _OuterFit:
+def _fit_outer_fold(
+    group, data, settings, repeat, fold, X_train, y_train, clock, costs=None
+) -> _OuterFit:
     """Grow T_max once, then every inner fold count's fold trees once, shared by all trials."""
     template = _tree_template(group, data, settings, repeat, fold)
     clock.check()
@@ -391,12 +417,28 @@ def _fit_outer_fold(group, data, settings, repeat, fold, X_train, y_train, clock
             rules=rules,
             fitted=full,
             before_fit=clock.check,
+            **_selection_costs(costs),
         )
         fit_inner[k] = time.perf_counter() - t0
         n_fits += next(iter(chosen.values())).n_fits
         for (risk, loss), selection in chosen.items():
             selections[(k, risk, loss)] = selection
     return _OuterFit(full, selections, fit_full, fit_inner, n_fits, family)
+
+
+def _selection_costs(costs) -> dict:
+    """The loss matrix, priors and smoothing keywords of ``select_alphas`` (none: defaults)."""
+    if costs is None:
+        return {}
+    loss_matrix, priors, smoothing = costs
+    return {"loss_matrix": loss_matrix, "priors": priors, "smoothing": smoothing}
+
+
+def _decided(costs) -> bool:
+    """Whether a loss matrix or priors decide the predicted classes."""
+    return costs is not None and (
+        costs[0] is not None or not isinstance(costs[1], str) or costs[1] != "data"
+    )
 
 
 def tree_features(model) -> dict:
@@ -413,12 +455,16 @@ def tree_features(model) -> dict:
     }
 
 
-def _pruned_rows(group, common: dict, fit: _OuterFit, X_test, y_test, classes) -> list[dict]:
+def _pruned_rows(
+    group, common: dict, fit: _OuterFit, X_test, y_test, classes, costs=None
+) -> list[dict]:
     """The pruned arm of every trial on one outer fold's test rows.
 
     Trials whose rules land on the same alpha of the same path share one pruned
-    tree, so it is rebuilt and scored once.
+    tree, so it is rebuilt and scored once.  Under a loss matrix or priors each
+    leaf predicts its cheapest class (the path's ``predict``).
     """
+    decided = classes is not None and _decided(costs)
     rows, scored = [], {}
     for trial in group.trials:
         t0 = time.perf_counter()
@@ -427,8 +473,9 @@ def _pruned_rows(group, common: dict, fit: _OuterFit, X_test, y_test, classes) -
         key = (trial.prune_risk, alpha)
         if key not in scored:
             pruned = selection.path.prune(alpha)
+            pred = selection.path.predict(X_test, alpha) if decided else None
             scored[key] = (
-                _scores(pruned, X_test, y_test, classes),
+                _scores(pruned, X_test, y_test, classes, costs, pred),
                 int(pruned.get_n_leaves()),
                 int(pruned.get_depth()),
                 tree_features(pruned),
@@ -503,10 +550,9 @@ def evaluate_group(group, data: LoadedDataset, settings: EvaluationSettings) -> 
     classes = np.unique(data.y) if is_classification(data.task) else None
     result = GroupResult(group_id=group.group_id)
     X, y = prepared_X(data), data.y
+    arrays = (X, y, classes, _group_costs(group, settings, classes))
     for repeat, fold, train, test in outer_splits(data, settings):
-        _evaluate_fold(
-            group, data, settings, (X, y, classes), (repeat, fold, train, test), clock, result
-        )
+        _evaluate_fold(group, data, settings, arrays, (repeat, fold, train, test), clock, result)
     result.seconds = clock.elapsed()
     return result
 
@@ -521,17 +567,23 @@ def time_outer_fold(group, data: LoadedDataset, settings: EvaluationSettings) ->
     X, y = prepared_X(data), data.y
     split = next(iter(outer_splits(data, settings)))
     clock = _Clock(None)
-    _evaluate_fold(
-        group, data, settings, (X, y, classes), split, clock, GroupResult(group.group_id)
-    )
+    arrays = (X, y, classes, _group_costs(group, settings, classes))
+    _evaluate_fold(group, data, settings, arrays, split, clock, GroupResult(group.group_id))
     return clock.elapsed()
+
+
+def _group_costs(group, settings: EvaluationSettings, classes) -> tuple | None:
+    """``(loss_matrix, priors, smoothing)`` of a classification group's data set, if any."""
+    if classes is None or not (settings.costs or settings.smoothing):
+        return None
+    return (*settings.costs_of(group.dataset, classes), settings.smoothing)
 
 
 def _evaluate_fold(group, data, settings, arrays, split, clock, result: GroupResult) -> None:
     """One outer fold of a group: its trees, selections and rows, added to ``result``."""
-    X, y, classes = arrays
+    X, y, classes, costs = arrays
     repeat, fold, train, test = split
-    fit = _fit_outer_fold(group, data, settings, repeat, fold, X[train], y[train], clock)
+    fit = _fit_outer_fold(group, data, settings, repeat, fold, X[train], y[train], clock, costs)
     result.n_fits += fit.n_fits
     X_test, y_test = X[test], y[test]
     common = {
@@ -541,15 +593,22 @@ def _evaluate_fold(group, data, settings, arrays, split, clock, result: GroupRes
         "n_test": int(test.size),
         "test_fingerprint": rows_fingerprint(test),
     }
+    pred_full = None
+    if classes is not None and _decided(costs):
+        # under a loss matrix or priors each leaf of T_max predicts its cheapest class
+        best = node_class_costs(fit.full, costs[0], costs[1], classes)[1]
+        pred_full = fit.full.classes_[
+            best[fit.full.apply(X_test, check_input=_needs_check(X_test))]
+        ]
     result.unpruned.append(
         {
             **common,
-            **_scores(fit.full, X_test, y_test, classes),
+            **_scores(fit.full, X_test, y_test, classes, costs, pred_full),
             "n_leaves": int(fit.full.get_n_leaves()),
             "depth": int(fit.full.get_depth()),
             "fit_seconds": fit.fit_full,
             **tree_features(fit.full),
         }
     )
-    result.pruned += _pruned_rows(group, common, fit, X_test, y_test, classes)
+    result.pruned += _pruned_rows(group, common, fit, X_test, y_test, classes, costs)
     result.curves += _curve_rows(group, repeat, fold, fit)

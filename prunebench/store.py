@@ -86,6 +86,7 @@ CREATE TABLE trials (
     started TEXT,
     finished TEXT,
     seconds REAL,
+{trial_columns}
     growth_id INTEGER REFERENCES growths(growth_id)
 );
 CREATE INDEX trials_study_status ON trials(study_id, status);
@@ -170,14 +171,16 @@ FROM pruned_folds p JOIN trials t ON t.trial_id = p.trial_id
 JOIN unpruned_folds u ON u.growth_id = t.growth_id AND u."repeat" = p."repeat" AND u.fold = p.fold;
 CREATE VIEW arm_summary AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, f.arm, COUNT(*) AS n_folds,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, f.arm,
+       COUNT(*) AS n_folds,
        {metric_means},
        AVG(f.n_leaves) AS n_leaves, AVG(f.depth) AS depth, AVG(f.alpha) AS alpha
 FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
 GROUP BY t.trial_id, f.arm;
 CREATE VIEW fold_differences AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, p."repeat", p.fold, u.n_train, u.n_test,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, p."repeat", p.fold,
+       u.n_train, u.n_test,
        {metric_differences},
        p.n_leaves - u.n_leaves AS n_leaves, p.alpha AS alpha
 FROM pruned_folds p JOIN trials t ON t.trial_id = p.trial_id
@@ -217,13 +220,28 @@ def schema_sql() -> str:
     names = metric_names()
     return _SCHEMA_TEMPLATE.format(
         metric_columns="\n".join(f"    {m} REAL," for m in names),
+        trial_columns="\n".join(f"    {c}," for c in _TRIAL_COLUMNS_V2),
         growth_columns=_growth_columns(),
         views=_views_sql(),
     )
 
 
+# the metric columns of schema 1 (prunebench 0.1.0)
+_METRICS_V1 = ("error", "accuracy", "balanced_accuracy", "log_loss", "brier", "mse", "mae", "r2")
+# the factors schema 2 added to ``trials``, with the level every schema-1 trial had
+_TRIAL_COLUMNS_V2 = (
+    "select_by TEXT NOT NULL DEFAULT 'error'",
+    "class_weight TEXT NOT NULL DEFAULT 'none'",
+)
+
+
 def _upgrade_1(conn: sqlite3.Connection) -> str:
-    """Version 1 -> 2: each result stored once.
+    """Version 1 -> 2: each result stored once; the factors and metrics added since 0.1.0.
+
+    ``trials`` gains ``select_by`` and ``class_weight`` (every schema-1 trial chose
+    alpha by ``error``, ``mse`` for regression, and grew unweighted trees) before its
+    ``growth_id``; the metrics and tree-shape columns added since are NULL for the
+    old rows.
 
     The unpruned rows of the trials that share a grown tree (identical but for
     their timings) become one row per growth setting and outer fold; the pruned
@@ -251,7 +269,14 @@ def _upgrade_1(conn: sqlite3.Connection) -> str:
         return ", ".join(f"f.{c}" if c in old else f"NULL AS {c}" for c in columns)
 
     shape = ["root_feature", "features_used"]
+    trial_columns = "".join(
+        f"ALTER TABLE trials ADD COLUMN {c};\n"
+        for c in _TRIAL_COLUMNS_V2
+        if c.split()[0] not in have
+    )
     return f"""
+{trial_columns}UPDATE trials SET select_by = 'mse' WHERE dataset_id IN
+    (SELECT dataset_id FROM datasets WHERE task = 'regression');
 CREATE TABLE growths (
     growth_id INTEGER PRIMARY KEY,
     study_id TEXT NOT NULL REFERENCES studies(study_id),

@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .datasets import LoadedDataset
+from .vocabulary import FACTORS as _SPECS
 from .vocabulary import factor_names, family_of, growth_factors
 
 __all__ = ["FACTORS", "SearchSpec", "Study", "Trial", "TrialGroup", "growth_id"]
@@ -41,6 +42,10 @@ class Trial:
         The data set's key in the study (its name, or name plus parameters).
     criterion, max_depth, min_samples_leaf, inner_folds, rule, prune_risk
         The levels; ``max_depth`` is None for unlimited.
+    select_by : str
+        The loss the inner CV chooses alpha by (``error`` or ``mse`` by default).
+    class_weight : str
+        ``"none"`` or ``"balanced"``: how the trees weight the classes as they grow.
     """
 
     trial_id: str
@@ -52,6 +57,8 @@ class Trial:
     inner_folds: int
     rule: str
     prune_risk: str
+    select_by: str = "error"
+    class_weight: str = "none"
 
     def levels(self) -> dict:
         """The factor levels as a dict."""
@@ -193,6 +200,8 @@ class Study:
     database: Path | None = None
     search: SearchSpec | None = None
     time_limit: float | None = None
+    costs: dict[str, tuple] = field(default_factory=dict)
+    smoothing: str | None = None
     _trials: list[Trial] = field(default_factory=list, repr=False)
 
     @property
@@ -225,7 +234,8 @@ class Study:
             A data set key of the study.
         levels : dict
             ``criterion``, ``max_depth`` (None = unlimited), ``min_samples_leaf``,
-            ``inner_folds``, ``rule``, ``prune_risk``.
+            ``inner_folds``, ``rule``, ``prune_risk``, and optionally ``select_by`` and
+            ``class_weight`` (their defaults when missing).
         """
         trial = _make_trial(self, dataset, levels)
         return TrialGroup.of([trial], self.growth_id(trial))
@@ -254,9 +264,22 @@ def _make_trial(study: Study, key: str, levels: dict) -> Trial:
     fp = study.datasets[key].fingerprint
     crit, depth, leaf = levels["criterion"], levels["max_depth"], levels["min_samples_leaf"]
     inner, risk, rule = levels["inner_folds"], levels["prune_risk"], levels["rule"]
+    family = study.task_of(key)
+    select_by = levels.get("select_by") or _SPECS["select_by"].default[family]
+    class_weight = levels.get("class_weight") or _SPECS["class_weight"].default[family]
+    # levels at their defaults are left out of the hashes, so the trials of studies
+    # written before these factors existed keep their ids; the curve id (group_id)
+    # includes both: a CV loss or a class weighting gives another inner-CV curve, and
+    # the curves table is keyed by group_id
+    extra = {
+        name: level
+        for name, level in (("select_by", select_by), ("class_weight", class_weight))
+        if level != _SPECS[name].default[family]
+    }
+    more = (extra,) if extra else ()
     return Trial(
-        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk),
-        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk),
+        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk, *more),
+        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk, *more),
         dataset=key,
         criterion=crit,
         max_depth=depth,
@@ -264,18 +287,22 @@ def _make_trial(study: Study, key: str, levels: dict) -> Trial:
         inner_folds=inner,
         rule=rule,
         prune_risk=risk,
+        select_by=select_by,
+        class_weight=class_weight,
     )
 
 
 def _expand(study: Study):
     for key in study.datasets:
         levels = study.factors[study.task_of(key)]
-        for crit, depth, leaf, inner, risk, rule in itertools.product(
+        for crit, depth, leaf, inner, risk, cw, by, rule in itertools.product(
             levels["criterion"],
             levels["max_depth"],
             levels["min_samples_leaf"],
             levels["inner_folds"],
             levels["prune_risk"],
+            levels["class_weight"],
+            levels["select_by"],
             levels["rule"],
         ):
             yield _make_trial(
@@ -288,5 +315,7 @@ def _expand(study: Study):
                     "inner_folds": inner,
                     "rule": rule,
                     "prune_risk": risk,
+                    "select_by": by,
+                    "class_weight": cw,
                 },
             )

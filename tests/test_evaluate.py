@@ -330,3 +330,124 @@ def test_fixed_rules_grow_no_fold_trees():
     assert result.n_fits == 2 * 4  # T_max only
     zero = [r for r in result.folds if r["arm"] == "pruned" and r["alpha"] == 0.0]
     assert len(zero) == 2 * 4
+
+
+# ---- select_by x class_weight under a loss matrix, conducted end to end ---------------------
+
+RARE = """\
+name = "rare-unit"
+seed = 8
+datasets = ["yeast6"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+max_depth = [4]
+inner_folds = [3]
+prune_risk = ["cost"]
+rule = ["min"]
+select_by = ["error", "auc"]
+class_weight = ["none", "balanced"]
+[costs]
+loss = { positive = { negative = 8 }, negative = { positive = 1 } }
+"""
+
+
+def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
+    import io
+    import sqlite3
+
+    from sklearn.metrics import average_precision_score, confusion_matrix, roc_auc_score
+    from sklearn.tree import DecisionTreeClassifier
+
+    from prunebench.execute import Progress, conduct
+    from prunebench.pruning import pruning_path
+
+    study = parse_study(RARE)
+    db = tmp_path / "rare.sqlite"
+    conduct(study, db, progress=Progress(0, io.StringIO()))
+    rows = (
+        sqlite3.connect(db)
+        .execute(
+            'SELECT t.select_by, t.class_weight, f.arm, f."repeat", f.fold, f.alpha, f.auc, '
+            "f.average_precision, f.expected_cost, f.error, f.n_leaves "
+            "FROM folds f JOIN trials t USING (trial_id)"
+        )
+        .fetchall()
+    )
+    assert len(rows) == 4 * 3 * 2
+    assert {(r[0], r[1]) for r in rows} == {
+        ("error", "none"),
+        ("error", "balanced"),
+        ("auc", "none"),
+        ("auc", "balanced"),
+    }
+    data = study.datasets["yeast6"]
+    settings = EvaluationSettings.of(study)
+    splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, settings)}
+    L = np.array([[0.0, 1.0], [8.0, 0.0]])  # classes (negative, positive); rows: truth
+    for _by, class_weight, arm, repeat, fold, alpha, auc, ap, cost, error, leaves in rows:
+        train, test = splits[(repeat, fold)]
+        full = DecisionTreeClassifier(
+            max_depth=4,
+            random_state=derive_seed(study.seed, data.fingerprint, repeat, fold, "tree"),
+            class_weight=None if class_weight == "none" else "balanced",
+        ).fit(data.X[train], data.y[train])
+        path = pruning_path(full, "cost", loss_matrix=L, classes=np.array(["negative", "positive"]))
+        tree = path.prune(alpha) if arm == "pruned" else full
+        assert tree.get_n_leaves() == leaves
+        positive = data.y[test] == "positive"
+        proba = tree.predict_proba(data.X[test])[:, 1]
+        if leaves > 1:
+            # scikit-learn as reference library
+            assert auc == pytest.approx(roc_auc_score(positive, proba), abs=1e-12)
+            assert ap == pytest.approx(average_precision_score(positive, proba), abs=1e-12)
+        else:
+            assert auc == pytest.approx(0.5)  # one score for every row: all pairs tied
+        # expected cost by hand: the confusion counts weighted by the loss matrix, with
+        # every leaf predicting its cheapest class (not its majority)
+        pred = path.predict(data.X[test], alpha if arm == "pruned" else 0.0)
+        if arm == "unpruned":
+            # T_max's own leaves (alpha 0 may already merge splits that gain nothing)
+            pred = full.classes_[
+                (
+                    full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None] @ L
+                ).argmin(axis=1)[full.apply(data.X[test])]
+            ]
+        counts = confusion_matrix(data.y[test], pred, labels=["negative", "positive"])
+        assert cost == pytest.approx((counts * L).sum() / test.size, abs=1e-12)
+        assert error == pytest.approx((counts.sum() - np.trace(counts)) / test.size, abs=1e-12)
+    # the loss matrix makes the trees flag rows: the cheapest class is not the majority's
+    assert any(c != e for *_, c, e, _ in rows)
+
+
+def test_laplace_smoothing_reaches_the_stored_probability_metrics():
+    from sklearn.tree import DecisionTreeClassifier
+
+    text = STUDY.format(rules='["min"]').replace("seed = 11", 'seed = 11\nsmoothing = "laplace"')
+    study = parse_study(text)
+    plain = _study('["min"]')
+    data = study.datasets["breast_cancer"]
+    group = study.groups()[0]
+    smoothed = evaluate_group(group, data, EvaluationSettings.of(study))
+    raw = evaluate_group(plain.groups()[0], data, EvaluationSettings.of(plain))
+    splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, _settings(study))}
+    for row, raw_row in zip(smoothed.folds, raw.folds, strict=True):
+        if row["arm"] != "unpruned":
+            continue
+        train, test = splits[(row["repeat"], row["fold"])]
+        full = DecisionTreeClassifier(
+            criterion=group.criterion,
+            max_depth=group.max_depth,
+            random_state=derive_seed(
+                study.seed, data.fingerprint, row["repeat"], row["fold"], "tree"
+            ),
+        ).fit(data.X[train], data.y[train])
+        counts = full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None]
+        # Laplace by hand: (n_c + 1) / (n + 2) in the row's leaf
+        p = ((counts + 1) / (counts.sum(axis=1, keepdims=True) + 2))[full.apply(data.X[test])]
+        # scikit-learn as reference library
+        assert row["log_loss"] == pytest.approx(log_loss(data.y[test], p), rel=1e-12)
+        assert row["brier"] == pytest.approx(2 * brier_score_loss(data.y[test], p[:, 1]), rel=1e-12)
+        # pure leaves no longer rule the log loss; the predictions are the same
+        assert row["log_loss"] < raw_row["log_loss"] and row["error"] == raw_row["error"]

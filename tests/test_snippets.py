@@ -123,3 +123,26 @@ def test_recommendation_records_are_json_with_code_and_caution():
     undecided = {**rec, "decided": False, "config": None, "reason": "no finished trial"}
     (record,) = recommendation_records([undecided])
     assert record["estimator"] is None and record["study_fragment"] is None
+
+
+
+def test_other_losses_and_class_weights_reach_the_estimator_and_the_fragment():
+    config = {
+        "criterion": "gini",
+        "max_depth": 4,
+        "min_samples_leaf": 1,
+        "inner_folds": 5,
+        "rule": "min",
+        "prune_risk": "cost",
+        "select_by": "auc",
+        "class_weight": "balanced",
+    }
+    rec = {"family": "classification", "config": config}
+    block = estimator_block(rec)
+    assert "select_by='auc'" in block and "class_weight='balanced'" in block
+    namespace: dict = {}
+    exec(block, namespace)  # the block builds the estimator it names
+    model = namespace["model"]
+    assert (model.select_by, model.class_weight) == ("auc", "balanced")
+    levels = tomllib.loads(study_fragment(rec))["factors"]["classification"]
+    assert (levels["select_by"], levels["class_weight"]) == (["auc"], ["balanced"])

@@ -312,15 +312,23 @@ def test_a_previous_release_database_is_upgraded_and_answers_as_before(tmp_path)
     fold_columns = [r[1] for r in before.execute("PRAGMA table_info(folds)")]
     # unpruned timings differed between the old groups that grew the same tree: left out
     no_timing = ", ".join(f'"{c}"' for c in fold_columns if c != "fit_seconds")
+    # the views gained columns (select_by, class_weight, the new metrics): the old ones answer
+    differences = ", ".join(
+        f'"{r[1]}"' for r in before.execute("PRAGMA table_info(fold_differences)")
+    )
+    summary_columns = ", ".join(
+        f'"{r[1]}"' for r in before.execute("PRAGMA table_info(arm_summary)")
+    )
     queries = [
         f"SELECT {no_timing} FROM folds",
         "SELECT trial_id, \"repeat\", fold, fit_seconds FROM folds WHERE arm = 'pruned'",
-        "SELECT * FROM fold_differences",
+        f"SELECT {differences} FROM fold_differences",
         "SELECT * FROM curves",
         "SELECT * FROM trials",
     ]
     expected = [_rows(before, q) for q in queries]
-    summary = before.execute("SELECT * FROM arm_summary ORDER BY trial_id, arm").fetchall()
+    summary_sql = f"SELECT {summary_columns} FROM arm_summary ORDER BY trial_id, arm"
+    summary = before.execute(summary_sql).fetchall()
     before.close()
 
     with ResultStore(copy) as store:
@@ -330,14 +338,16 @@ def test_a_previous_release_database_is_upgraded_and_answers_as_before(tmp_path)
     assert after.execute("PRAGMA foreign_key_check").fetchall() == []
     for query, rows in zip(queries[:-1], expected[:-1], strict=True):
         assert _rows(after, query) == rows, query
-    # the trials keep every column and value; the added growth_id names one growth row each
+    # the trials keep every column and value; the added select_by and class_weight are the
+    # levels every 0.1.0 trial had, the added growth_id names one growth row each
     trials = _rows(after, "SELECT * FROM trials")
-    assert [t[:-1] for t in trials] == expected[-1]
+    assert [t[:-3] for t in trials] == expected[-1]
+    assert {t[-2] for t in trials} == {"none"} and {t[-3] for t in trials} == {"error", "mse"}
     assert all(t[-1] is not None for t in trials)
     # 3 data sets x 2 criteria (1 for diabetes) x 2 depths grow distinct trees
     assert after.execute("SELECT COUNT(*) FROM growths").fetchone()[0] == (2 + 2 + 1) * 2
     assert after.execute("SELECT COUNT(*) FROM unpruned_folds").fetchone()[0] == 10 * 2 * 3
-    got = after.execute("SELECT * FROM arm_summary ORDER BY trial_id, arm").fetchall()
+    got = after.execute(summary_sql).fetchall()
     assert len(got) == len(summary) == 80 * 2
     for new, was in zip(got, summary, strict=True):
         # means of the same values summed in another order: equal to rounding
@@ -385,3 +395,42 @@ def test_the_upgraded_fixture_takes_the_same_study_again_without_changes(tmp_pat
     db = shutil.copy(fixtures / "previous_release.sqlite", tmp_path / "old.sqlite")
     summary = conduct(load_study(tmp_path / "study.toml"), db, progress=Progress(0, io.StringIO()))
     assert (summary.done, summary.skipped) == (0, 80)
+
+
+def _schema(path):
+    import re
+
+    conn = sqlite3.connect(path)
+    rows = conn.execute("SELECT type, name, sql FROM sqlite_master WHERE type != 'table'")
+    others = sorted((kind, name, re.sub(r"\s+", " ", sql or "")) for kind, name, sql in rows)
+    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+    columns = {
+        t: sorted(tuple(r[1:]) for r in conn.execute(f"PRAGMA table_info({t})")) for t in tables
+    }
+    return others, columns, conn.execute("PRAGMA user_version").fetchone()[0]
+
+
+def test_the_previous_release_upgrades_to_the_new_schema(tmp_path):
+    # a database written by 0.1.0 (tests/fixtures/previous_release.sqlite, schema 1) is
+    # upgraded on opening: the same columns (name, type, NOT NULL, default), indexes and
+    # views as a new database, its trials at the levels they had (alpha chosen by error
+    # or mse, unweighted trees) and NULL for the metrics it did not store
+    import shutil
+    from pathlib import Path
+
+    old = Path(__file__).with_name("fixtures") / "previous_release.sqlite"
+    assert _schema(old)[2] == 1
+    copy = shutil.copy(old, tmp_path / "old.sqlite")
+    ResultStore(copy).close()
+    ResultStore(tmp_path / "new.sqlite").close()
+    assert _schema(copy) == _schema(tmp_path / "new.sqlite")
+    assert _schema(copy)[2] == SCHEMA_VERSION == 2
+    conn = sqlite3.connect(copy)
+    levels = conn.execute(
+        "SELECT d.task = 'regression', t.select_by, t.class_weight, COUNT(*) "
+        "FROM trials t JOIN datasets d USING (dataset_id) GROUP BY 1, 2, 3 ORDER BY 1"
+    ).fetchall()
+    assert [row[:3] for row in levels] == [(0, "error", "none"), (1, "mse", "none")]
+    # (the stored rows themselves: test_a_previous_release_database_is_upgraded_and_...)
+    assert conn.execute("SELECT COUNT(*) FROM folds WHERE auc IS NOT NULL").fetchone() == (0,)
+    assert conn.execute("SELECT COUNT(*) FROM arm_summary").fetchone()[0] > 0

@@ -56,3 +56,27 @@ def test_a_search_configuration_is_a_one_trial_group_with_the_sweeps_ids():
     group = study.trial_group(swept.dataset, swept.levels())
     assert group == TrialGroup.of([swept], study.growth_id(swept))
     assert group.trials[0].trial_id == swept.trial_id
+
+
+def test_default_levels_keep_the_ids_and_other_levels_get_their_own():
+    plain = parse_study(STUDY)
+    named = parse_study(
+        STUDY + 'select_by = ["error", "auc"]\nclass_weight = ["none", "balanced"]\n'
+    )
+    ids = {t.trial_id for t in plain.trials()}
+    default = [t for t in named.trials() if (t.select_by, t.class_weight) == ("error", "none")]
+    # naming the default levels changes no trial id (studies from before these factors)
+    assert {t.trial_id for t in default} == ids
+    assert {t.group_id for t in default} == {t.group_id for t in plain.trials()}
+    assert len(named.trials()) == 4 * len(plain.trials())
+    assert len({t.trial_id for t in named.trials()}) == len(named.trials())
+    # a group shares the grown trees: one class weight (it changes the tree), every CV loss
+    for group in named.groups():
+        assert {t.class_weight for t in group.trials} == {group.class_weight}
+        assert {t.select_by for t in group.trials} == {"error", "auc"}
+        assert group.rules == ["min", "1se"]
+    # a curve id (group_id, the curves table's key) names one CV loss and class weight
+    curves: dict = {}
+    for t in named.trials():
+        curves.setdefault(t.group_id, set()).add((t.select_by, t.class_weight))
+    assert all(len(levels) == 1 for levels in curves.values())
