@@ -79,7 +79,9 @@ def previous_schema() -> str:
 
 
 def _insert(conn, table: str, rows: list[dict]) -> None:
-    names = list(rows[0])
+    # the previous release's tables lack the columns added since (new metrics, tree shape)
+    have = {r[1] for r in conn.execute(f"PRAGMA table_info({table})")}
+    names = [n for n in rows[0] if n in have]
     quoted = ", ".join('"' + n + '"' for n in names)
     marks = ", ".join("?" * len(names))
     conn.executemany(
