@@ -313,24 +313,42 @@ def datasets(as_json, manifests) -> None:
 
 @main.command()
 @_study_file_argument
-@click.option("--workers", default=1, show_default=True, help="Workers to estimate the time for.")
+@click.option(
+    "--workers",
+    default=(1,),
+    multiple=True,
+    type=int,
+    show_default=True,
+    help="Workers to estimate the time for (repeat the option for several counts).",
+)
+@_json_option
 @_reports_errors
-def check(study_file, workers) -> None:
-    """Validate a study file and print its plan: trials, tree fits and a time estimate.
+def check(study_file, workers, as_json) -> None:
+    """Validate a study file and print its plan: trials, groups, tree fits and a time estimate.
 
-    Nothing is written. The estimate times one tree fit per data set and scales it
-    by the number of fits; trees with a depth limit or larger leaves fit faster.
+    Nothing is written. Every group (the trials that share the grown trees) is timed
+    on its first outer fold, as conduct evaluates it, and the estimate scales that
+    by the outer folds; with --json the plan is printed as one JSON object.
     """
-    from .execute import default_database, plan, usable_workers
+    import json
+
+    from .execute import default_database, plan, plan_summary, usable_workers
     from .study import load_study
     from .text import plan_text
 
-    workers, note = usable_workers(workers)
-    if note:
-        click.echo(f"note: {note}")
+    counts = []
+    for asked in workers:
+        used, note = usable_workers(asked)
+        if note and not as_json:
+            click.echo(f"note: {note}")
+        counts.append(used)
     study = load_study(study_file)
+    if as_json:
+        summary = plan_summary(study, counts) if study.search is None else {"study": study.name}
+        click.echo(json.dumps(summary, indent=2))
+        return
     rows = plan(study) if study.search is None else []
-    click.echo(plan_text(study, rows, default_database(study), workers))
+    click.echo(plan_text(study, rows, default_database(study), counts))
 
 
 @main.command()

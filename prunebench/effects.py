@@ -57,6 +57,7 @@ from .vocabulary import (
     is_relative,
     metric_names,
 )
+from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
     "EFFECT_COLUMNS",
@@ -79,6 +80,8 @@ __all__ = [
 
 #: the factor columns of a configuration, in the order of the store
 FACTORS = factor_names()
+#: factors added after the first release: folds without their column are at the default level
+_LATER_FACTORS = ("select_by", "class_weight")
 
 
 def _family_metrics(family: str) -> set[str]:
@@ -429,11 +432,15 @@ def losses(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     missing = {"dataset", "task", "trial_id", "repeat", "fold", "arm", "n_train", "n_test"}
     missing |= {"n_leaves", metric, *FACTORS}
     missing -= set(folds.columns)
+    defaulted = missing & set(_LATER_FACTORS)
+    missing -= defaulted
     if missing:
         raise EffectsError(f"the folds lack the column(s) {', '.join(sorted(missing))}")
     rows = folds[folds["task"].map(family_of) == family].copy()
     if rows.empty:
         raise EffectsError(f"no {family} data set in the folds")
+    for factor in sorted(defaulted):
+        rows[factor] = _FACTOR_SPECS[factor].default[family]
     loss = rows[metric].astype(float)
     if higher_is_better(metric):
         loss = 1.0 - loss

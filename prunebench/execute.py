@@ -37,7 +37,9 @@ __all__ = [
     "Progress",
     "conduct",
     "default_database",
+    "estimated_seconds",
     "plan",
+    "plan_summary",
     "usable_workers",
 ]
 
@@ -140,11 +142,13 @@ class Progress:
 
 
 def plan(study: Study) -> list[dict]:
-    """Per data set: trials, tree fits and a rough time, from one calibration fit each.
+    """Per data set: trials, groups, tree fits and a time, calibrated per growth setting.
 
-    The calibration grows one unlimited-depth tree with the study's first criterion on
-    an outer-training share of the rows (best of three); the estimate multiplies it by
-    the fits, so depth-limited or large-leaf levels make it pessimistic.
+    Every group (the trials that share the grown trees: one data set and growth
+    setting) is timed on its first outer fold, evaluated as ``conduct`` evaluates it
+    (its trees, selections and scores); the estimate multiplies that by the outer
+    folds, so a depth-capped setting is calibrated on depth-capped trees.  Timing
+    one outer fold costs ``1 / (repeats x folds)`` of the study's time.
 
     Parameters
     ----------
@@ -153,28 +157,19 @@ def plan(study: Study) -> list[dict]:
     Returns
     -------
     list of dict
-        ``dataset``, ``task``, ``rows``, ``features``, ``trials``, ``fits`` (each outer
-        fold grows T_max and one tree per inner fold) and ``seconds``.
+        ``dataset``, ``task``, ``rows``, ``features``, ``trials``, ``groups``, ``fits``
+        (each outer fold grows T_max and the fold trees of each distinct inner fold
+        count once), ``seconds`` and ``group_seconds`` (the estimate of every group).
     """
-    import numpy as np
-    from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+    from .evaluate import growth_fits, time_outer_fold
 
+    settings = EvaluationSettings.of(study)
     groups = study.groups()
+    outer = study.repeats * study.folds
     out = []
     for key, data in study.datasets.items():
-        task = study.task_of(key)
-        model = DecisionTreeClassifier if task == "classification" else DecisionTreeRegressor
-        n = int(len(data.y) * (study.folds - 1) / study.folds)
-        rows = np.random.default_rng(0).permutation(len(data.y))[:n]
-        per_fit = float("inf")
-        for _ in range(3):
-            t0 = time.perf_counter()
-            model(criterion=study.factors[task]["criterion"][0], random_state=0).fit(
-                data.X[rows], data.y[rows]
-            )
-            per_fit = min(per_fit, time.perf_counter() - t0)
         mine = [g for g in groups if g.dataset == key]
-        fits = sum(study.repeats * study.folds * (1 + g.inner_folds) for g in mine)
+        group_seconds = [outer * time_outer_fold(g, data, settings) for g in mine]
         out.append(
             {
                 "dataset": key,
@@ -182,11 +177,60 @@ def plan(study: Study) -> list[dict]:
                 "rows": int(len(data.y)),
                 "features": int(data.X.shape[1]),
                 "trials": sum(len(g.trials) for g in mine),
-                "fits": fits,
-                "seconds": fits * per_fit,
+                "groups": len(mine),
+                "fits": sum(outer * growth_fits(g) for g in mine),
+                "seconds": float(sum(group_seconds)),
+                "group_seconds": group_seconds,
             }
         )
     return out
+
+
+def estimated_seconds(rows: list[dict], workers: int) -> float:
+    """The study's time with ``workers`` running groups side by side.
+
+    Groups are handed out longest first to the worker that frees up first, as the
+    pool does with the groups in turn; the estimate is the last worker's finish.
+
+    Parameters
+    ----------
+    rows : list of dict
+        From :func:`plan`.
+    workers : int
+    """
+    import heapq
+
+    finish = [0.0] * max(workers, 1)
+    for seconds in sorted((s for r in rows for s in r["group_seconds"]), reverse=True):
+        heapq.heapreplace(finish, finish[0] + seconds)
+    return max(finish)
+
+
+def plan_summary(study: Study, workers: tuple[int, ...] | list[int] = (1,)) -> dict:
+    """The plan of a study as one value: what ``prunebench check --json`` prints.
+
+    Parameters
+    ----------
+    study : Study
+    workers : sequence of int
+        Worker counts to estimate the time for.
+
+    Returns
+    -------
+    dict
+        ``study``, ``datasets`` (the rows of :func:`plan` without ``group_seconds``),
+        ``trials``, ``groups``, ``n_fits`` and ``seconds`` (worker count -> estimated
+        seconds).
+    """
+    rows = plan(study)
+    return {
+        "study": study.name,
+        "datasets": [{k: v for k, v in r.items() if k != "group_seconds"} for r in rows],
+        "trials": len(study.trials()),
+        "groups": len(study.groups()),
+        "n_fits": sum(r["fits"] for r in rows),
+        "seconds": {str(w): estimated_seconds(rows, w) for w in dict.fromkeys(workers)},
+    }
 
 
 def usable_workers(workers: int) -> tuple[int, str | None]:

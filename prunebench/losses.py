@@ -35,6 +35,7 @@ __all__ = [
     "class_index",
     "error",
     "expected_cost",
+    "fold_metrics",
     "leaf_probabilities",
     "log_loss",
     "parse_smoothing",
@@ -306,6 +307,70 @@ def brier_decomposition(y, proba, sample_weight=None, binary: bool = False) -> B
     uncertainty = float(np.sum(overall * (1.0 - overall)))
     score = float(np.sum(w * np.sum((proba - onehot) ** 2, axis=1)) / total)
     return BrierParts(reliability, resolution, uncertainty, score)
+
+
+def fold_metrics(proba, y, classes, loss_matrix=None, pred=None) -> dict[str, float | None]:
+    """Every classification metric of the vocabulary on one outer fold's test rows.
+
+    Parameters
+    ----------
+    proba : array-like of shape (n_samples, n_classes)
+        Class probabilities in ``classes`` order (a column of zeros for a class the
+        tree did not see in training).
+    y : array-like of shape (n_samples,)
+        True labels.
+    classes : array-like of shape (n_classes,)
+        The data set's sorted class labels.
+    loss_matrix : array-like of shape (n_classes, n_classes), optional
+        ``L[i, j]``, the cost of predicting ``j`` when the truth is ``i``, in
+        ``classes`` order; None is 0-1 loss (``expected_cost`` then equals ``error``).
+    pred : array-like of shape (n_samples,), optional
+        Predicted labels (a tree's cost-minimising classes under a loss matrix or
+        priors); by default the most probable class, first on ties.
+
+    Returns
+    -------
+    dict
+        ``error``, ``accuracy``, ``balanced_accuracy`` (as scikit-learn's
+        ``balanced_accuracy_score``), ``log_loss`` (clipped at :data:`PROBA_CLIP`),
+        ``brier`` (summed over classes), ``auc`` (binary; one-vs-rest macro average
+        for three or more classes), ``average_precision`` (binary; None otherwise),
+        ``brier_calibration`` and ``brier_refinement`` (Murphy's reliability, and
+        uncertainty - resolution, of ``brier``: they sum to it) and ``expected_cost``
+        (mean ``L[y, pred]``).
+    """
+    classes = np.asarray(classes)
+    y = np.asarray(y)
+    proba = np.asarray(proba, dtype=float)
+    truth = np.searchsorted(classes, y)
+    pred = classes[np.argmax(proba, axis=1)] if pred is None else np.asarray(pred)
+    n = y.size
+    onehot = np.zeros_like(proba)
+    onehot[np.arange(n), truth] = 1.0
+    clipped = np.clip(proba, PROBA_CLIP, 1.0)
+    clipped /= clipped.sum(axis=1, keepdims=True)
+    accuracy = float(np.mean(pred == y))
+    # per-class recall over the classes present in y, averaged in label order (the
+    # order and the integer division of scikit-learn's balanced_accuracy_score)
+    total = np.bincount(truth, minlength=classes.size)
+    hit = np.bincount(truth[pred == y], minlength=classes.size)
+    present = total > 0
+    parts = brier_decomposition(truth, proba)
+    pred_index = np.searchsorted(classes, pred)
+    L = 1.0 - np.eye(classes.size) if loss_matrix is None else np.asarray(loss_matrix, float)
+    binary = classes.size == 2
+    return {
+        "error": 1.0 - accuracy,
+        "accuracy": accuracy,
+        "balanced_accuracy": float(np.mean(hit[present] / total[present])),
+        "log_loss": float(-np.mean(np.log(clipped[np.arange(n), truth]))),
+        "brier": float(np.mean(np.sum((proba - onehot) ** 2, axis=1))),
+        "auc": roc_auc(truth, proba[:, 1] if binary else proba),
+        "average_precision": average_precision(truth == 1, proba[:, 1]) if binary else None,
+        "brier_calibration": parts.reliability,
+        "brier_refinement": parts.uncertainty - parts.resolution,
+        "expected_cost": float(np.mean(L[truth, pred_index])),
+    }
 
 
 _M_SPELLING = re.compile(r"^m(\d+(?:\.\d+)?)$")

@@ -200,7 +200,9 @@ def fetch(path: str | Path, sql: str) -> tuple[list[str], list[tuple]]:
             raise QueryError(f"the query failed: {err}") from None
         except sqlite3.DatabaseError as err:
             message = str(err)
-            if any(w in message for w in ("not authorized", "readonly", "may not be modified")):
+            # "cannot modify folds because it is a view": folds is a view since schema 2
+            refusals = ("not authorized", "readonly", "may not be modified", "cannot modify")
+            if any(w in message for w in refusals):
                 raise QueryError(
                     "refused: the statement would change the results; "
                     "'prunebench sql' runs read-only queries"

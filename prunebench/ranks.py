@@ -27,6 +27,7 @@ import pandas as pd
 from scipy import stats as sps
 
 from .stats import (
+    _with_default_levels,
     bayesian_signed_rank,
     corrected_ttest,
     critical_difference,
@@ -51,6 +52,8 @@ def _config_scores(folds: pd.DataFrame, metric: str) -> tuple[pd.DataFrame, pd.D
 
     The columns are :class:`Configuration` objects, in the order of their level tuples.
     """
+    # folds from before select_by and class_weight (no column) are at their default levels
+    folds = _with_default_levels(folds)
     pruned = folds[folds["arm"] == "pruned"]
     unpruned = folds[folds["arm"] == "unpruned"].copy()
     # one unpruned tree per level combination of the growth factors: the other factors
@@ -361,6 +364,7 @@ def _config_rows(folds: pd.DataFrame, config: Configuration) -> pd.DataFrame:
     levels = config.levels()
     arm = "pruned" if config.pruned else "unpruned"
     names = factor_names() if config.pruned else growth_factors()
+    folds = _with_default_levels(folds)
     rows = folds[folds["arm"] == arm]
     for name in names:
         value = levels[name]

@@ -44,7 +44,7 @@ from .effects import (
     random_effects_many,
 )
 from .exceptions import parameter_error
-from .vocabulary import DEFAULT_METRIC, default_margin, family_of, metric_names
+from .vocabulary import DEFAULT_METRIC, default_margin, family_of, growth_factors, metric_names
 
 __all__ = [
     "config_frame",
@@ -55,7 +55,8 @@ __all__ = [
     "upper_bounds",
 ]
 
-_GROWTH = ["criterion", "max_depth", "min_samples_leaf"]
+#: the factors that change the grown tree (one unpruned tree per level of each)
+_GROWTH = growth_factors()
 
 
 def config_label(config) -> str:
@@ -93,8 +94,9 @@ def config_frame(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     -------
     DataFrame
         Columns ``dataset``, ``repeat``, ``fold``, ``n_train``, ``n_test``, ``config``
-        (a tuple of levels in factor order, None for unlimited depth and for the
-        unpruned trees' inner folds and risk), ``loss``, ``n_leaves`` and, when the folds
+        (a tuple of levels in factor order, None for unlimited depth, no class weight and
+        the unpruned trees' inner folds, risk and CV loss), ``loss``, ``n_leaves`` and,
+        when the folds
         have them, ``alpha``, ``root_feature``, ``features_used``.
     """
     rows = losses(folds, family, metric)
@@ -103,6 +105,7 @@ def config_frame(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
     # the unpruned tree depends on the growth settings only: one configuration each
     unpruned = unpruned.drop_duplicates(["dataset", *_GROWTH, "repeat", "fold"])
     unpruned["inner_folds"], unpruned["rule"], unpruned["prune_risk"] = None, "unpruned", None
+    unpruned["select_by"] = None  # an unpruned tree chooses no alpha
     both = pd.concat([pruned, unpruned], ignore_index=True)
     columns = [[_norm(v) for v in both[f].astype(object)] for f in FACTORS]
     both["config"] = list(zip(*columns, strict=True))

@@ -33,6 +33,7 @@ from .vocabulary import (
     family_of,
     metric_names,
 )
+from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
     "QueryError",
@@ -104,9 +105,32 @@ def resolve_study(store: ResultStore, study: str | None = None) -> dict:
 _SHAPE_COLUMNS = ("root_feature", "features_used")
 
 
-def _folds_sql(shape: tuple[str, ...] = ()) -> str:
-    factors = ", ".join(f"t.{f}" for f in factor_names())
-    metrics = ", ".join(f"f.{m}" for m in metric_names())
+def _default_level(factor: str) -> str:
+    """SQL for a factor's default level by the data set's task (a file from before it)."""
+    default = _FACTOR_SPECS[factor].default
+
+    def quoted(value) -> str:
+        return "NULL" if value is None else "'" + str(value).replace("'", "''") + "'"
+
+    return (
+        f"CASE WHEN d.task = 'regression' THEN {quoted(default[REGRESSION])} "
+        f"ELSE {quoted(default[CLASSIFICATION])} END"
+    )
+
+
+def _folds_sql(
+    shape: tuple[str, ...] = (), trial_columns: set | None = None, fold_columns: set | None = None
+) -> str:
+    # a read-only file of schema 1 lacks the factors and metrics added since: their
+    # default levels and NULL stand in
+    factors = ", ".join(
+        f"t.{f}" if trial_columns is None or f in trial_columns else f"{_default_level(f)} AS {f}"
+        for f in factor_names()
+    )
+    metrics = ", ".join(
+        f"f.{m}" if fold_columns is None or m in fold_columns else f"NULL AS {m}"
+        for m in metric_names()
+    )
     extra = "".join(f", f.{c}" for c in shape)
     return (
         f"SELECT d.name AS dataset, d.task, t.trial_id, {factors}, "
@@ -139,8 +163,10 @@ def load_folds(store: ResultStore, study: str | None = None) -> pd.DataFrame:
     """
     study_id = resolve_study(store, study)["study_id"]
     present = {r["name"] for r in store.query("PRAGMA table_info(folds)")}
+    trial_columns = {r["name"] for r in store.query("PRAGMA table_info(trials)")}
     shape = tuple(c for c in _SHAPE_COLUMNS if c in present)
-    frame = pd.read_sql_query(_folds_sql(shape), store.db.conn, params=[study_id])
+    sql = _folds_sql(shape, trial_columns, present)
+    frame = pd.read_sql_query(sql, store.db.conn, params=[study_id])
     if frame.empty:
         raise QueryError(f"{store.path}: the study has no finished trials yet")
     frame["max_depth"] = frame["max_depth"].astype("Int64")

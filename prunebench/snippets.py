@@ -176,9 +176,14 @@ def estimator_for(task: str) -> type:
 
 def _growth_arguments(config: Configuration) -> str:
     depth = "None" if config.max_depth is None else int(config.max_depth)
+    weights = (
+        f"    class_weight={config.class_weight!r},\n"
+        if config.class_weight not in (None, "none")
+        else ""
+    )
     return (
         f"    criterion={config.criterion!r},\n    max_depth={depth},\n"
-        f"    min_samples_leaf={int(config.min_samples_leaf)},\n"
+        f"    min_samples_leaf={int(config.min_samples_leaf)},\n{weights}"
     )
 
 
@@ -197,6 +202,11 @@ def estimator_block(rec: dict) -> str:
     """
     config = Configuration.of(rec["config"])
     pruned, plain = ESTIMATORS[rec["family"]]
+    select_by = (
+        f"    select_by={config.select_by!r},\n"
+        if config.select_by not in (None, "error", "mse")
+        else ""
+    )
     if not config.pruned:
         return (
             f"from sklearn.tree import {plain}\n\nmodel = {plain}(\n"
@@ -205,7 +215,7 @@ def estimator_block(rec: dict) -> str:
     return (
         f"from prunebench import {pruned}\n\nmodel = {pruned}(\n{_growth_arguments(config)}"
         f"    prune_risk={config.prune_risk!r},\n    cv={int(config.inner_folds)},\n"
-        f"    rule={config.rule!r},\n)"
+        f"    rule={config.rule!r},\n{select_by})"
     )
 
 
@@ -226,6 +236,12 @@ def study_fragment(rec: dict) -> str:
     levels = config.levels()
     names = list(FACTORS) if config.pruned else growth_factors()
     lines = [f"[factors.{rec['family']}]"]
+    # the loss that chose alpha and the class weights only when a study must name them
+    names = [
+        n
+        for n in names
+        if n not in ("select_by", "class_weight") or levels[n] not in (None, "none", "error", "mse")
+    ]
     lines += [f"{name} = [{_toml_level(levels[name])}]" for name in names]
     return "\n".join(lines)
 

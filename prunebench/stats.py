@@ -378,9 +378,25 @@ def metric_rows(folds: pd.DataFrame, metric: str | None) -> tuple[pd.DataFrame, 
 # ---- the comparison table --------------------------------------------------------------
 
 
+#: factors added after the first release; folds without their column are at the default level
+_LATER_FACTORS = ("select_by", "class_weight")
+
+
+def _with_default_levels(folds: pd.DataFrame) -> pd.DataFrame:
+    """The folds with a column for every factor (a missing later one at its default level)."""
+    later = [f for f in _LATER_FACTORS if f not in folds]
+    if not later:
+        return folds
+    folds = folds.copy()
+    for name in later:
+        default = FACTORS[name].default
+        folds[name] = folds["task"].map(lambda task, d=default: d[family_of(task)])
+    return folds
+
+
 def _paired_means(folds: pd.DataFrame, metric: str | None) -> pd.DataFrame:
     """Per trial: means and variances of both arms, of their per-fold difference and of leaves."""
-    folds, tasks = metric_rows(folds, metric)
+    folds, tasks = metric_rows(_with_default_levels(folds), metric)
     folds = folds.assign(metric=folds["task"].map(tasks))
     folds["value"] = np.nan
     for task, m in tasks.items():

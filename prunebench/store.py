@@ -1,8 +1,11 @@
 """The results database: one SQLite file, one writer, one transaction per trial group.
 
 Tables (see the README for every column): ``studies``, ``datasets``, ``trials``,
-``folds``, ``curves``, ``environments``; views ``arm_summary`` and
-``fold_differences``.  The schema version is SQLite's ``user_version``; older
+``growths`` (one row per study, data set and growth setting), ``unpruned_folds``
+(the grown tree once per growth setting and outer fold), ``pruned_folds`` (per
+trial and outer fold), ``curves`` (per curve id, the trials' ``group_id``, and
+outer fold), ``environments``; views ``folds`` (today's per-trial, per-arm rows),
+``arm_summary`` and ``fold_differences``.  The schema version is SQLite's ``user_version``; older
 files are upgraded step by step, newer ones are refused.  A conducting process
 holds an exclusive lock file beside the database, so a second one is refused; the
 lock file names its holder's process, and a lock whose holder no longer exists is
@@ -25,7 +28,7 @@ from pathlib import Path
 from . import lockfile
 from ._version import __version__
 from .exceptions import StoreError
-from .vocabulary import metric_names
+from .vocabulary import FACTORS, growth_factors, metric_names
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -80,19 +83,39 @@ CREATE TABLE trials (
     error TEXT,
     started TEXT,
     finished TEXT,
-    seconds REAL
+    seconds REAL,
+{trial_columns}
+    growth_id INTEGER REFERENCES growths(growth_id)
 );
 CREATE INDEX trials_study_status ON trials(study_id, status);
+CREATE INDEX trials_growth ON trials(growth_id);
 CREATE INDEX trials_dataset ON trials(dataset_id);
 CREATE INDEX trials_group ON trials(group_id);
-CREATE TABLE folds (
-    trial_id TEXT NOT NULL REFERENCES trials(trial_id),
+CREATE TABLE growths (
+    growth_id INTEGER PRIMARY KEY,
+    study_id TEXT NOT NULL REFERENCES studies(study_id),
+    dataset_id TEXT NOT NULL REFERENCES datasets(dataset_id),
+{growth_columns}
+);
+CREATE TABLE unpruned_folds (
+    growth_id INTEGER NOT NULL REFERENCES growths(growth_id),
     "repeat" INTEGER NOT NULL,
     fold INTEGER NOT NULL,
-    arm TEXT NOT NULL CHECK (arm IN ('unpruned', 'pruned')),
     n_train INTEGER NOT NULL,
     n_test INTEGER NOT NULL,
     test_fingerprint TEXT NOT NULL,
+{metric_columns}
+    n_leaves INTEGER NOT NULL,
+    depth INTEGER NOT NULL,
+    fit_seconds REAL NOT NULL,
+    root_feature INTEGER,
+    features_used TEXT,
+    PRIMARY KEY (growth_id, "repeat", fold)
+) WITHOUT ROWID;
+CREATE TABLE pruned_folds (
+    trial_id TEXT NOT NULL REFERENCES trials(trial_id),
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
 {metric_columns}
     n_leaves INTEGER NOT NULL,
     depth INTEGER NOT NULL,
@@ -100,9 +123,8 @@ CREATE TABLE folds (
     fit_seconds REAL NOT NULL,
     root_feature INTEGER,
     features_used TEXT,
-    PRIMARY KEY (trial_id, "repeat", fold, arm)
-);
-CREATE INDEX folds_arm ON folds(arm);
+    PRIMARY KEY (trial_id, "repeat", fold)
+) WITHOUT ROWID;
 CREATE TABLE curves (
     group_id TEXT NOT NULL,
     "repeat" INTEGER NOT NULL,
@@ -113,7 +135,7 @@ CREATE TABLE curves (
     mean REAL NOT NULL,
     se REAL NOT NULL,
     PRIMARY KEY (group_id, "repeat", fold, candidate)
-);
+) WITHOUT ROWID;
 CREATE TABLE environments (
     environment_id INTEGER PRIMARY KEY,
     study_id TEXT NOT NULL REFERENCES studies(study_id),
@@ -125,49 +147,209 @@ CREATE TABLE environments (
     prunebench TEXT NOT NULL,
     platform TEXT NOT NULL
 );
+{views}
+"""
+
+
+
+_VIEWS_TEMPLATE = """
+CREATE VIEW folds AS
+SELECT p.trial_id, p."repeat", p.fold, 'unpruned' AS arm, u.n_train, u.n_test,
+       u.test_fingerprint,
+       {unpruned_metrics},
+       u.n_leaves, u.depth, 0.0 AS alpha, u.fit_seconds, u.root_feature, u.features_used
+FROM pruned_folds p JOIN trials t ON t.trial_id = p.trial_id
+JOIN unpruned_folds u ON u.growth_id = t.growth_id AND u."repeat" = p."repeat" AND u.fold = p.fold
+UNION ALL
+SELECT p.trial_id, p."repeat", p.fold, 'pruned' AS arm, u.n_train, u.n_test,
+       u.test_fingerprint,
+       {pruned_metrics},
+       p.n_leaves, p.depth, p.alpha, p.fit_seconds, p.root_feature, p.features_used
+FROM pruned_folds p JOIN trials t ON t.trial_id = p.trial_id
+JOIN unpruned_folds u ON u.growth_id = t.growth_id AND u."repeat" = p."repeat" AND u.fold = p.fold;
 CREATE VIEW arm_summary AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, f.arm, COUNT(*) AS n_folds,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, f.arm,
+       COUNT(*) AS n_folds,
        {metric_means},
        AVG(f.n_leaves) AS n_leaves, AVG(f.depth) AS depth, AVG(f.alpha) AS alpha
 FROM folds f JOIN trials t USING (trial_id) JOIN datasets d USING (dataset_id)
 GROUP BY t.trial_id, f.arm;
 CREATE VIEW fold_differences AS
 SELECT t.study_id, t.trial_id, d.name AS dataset, t.criterion, t.max_depth, t.min_samples_leaf,
-       t.inner_folds, t.rule, t.prune_risk, p."repeat", p.fold, p.n_train, p.n_test,
+       t.inner_folds, t.rule, t.prune_risk, t.select_by, t.class_weight, p."repeat", p.fold,
+       u.n_train, u.n_test,
        {metric_differences},
        p.n_leaves - u.n_leaves AS n_leaves, p.alpha AS alpha
-FROM folds p
-JOIN folds u ON u.trial_id = p.trial_id AND u."repeat" = p."repeat" AND u.fold = p.fold
-     AND u.arm = 'unpruned'
-JOIN trials t ON t.trial_id = p.trial_id JOIN datasets d USING (dataset_id)
-WHERE p.arm = 'pruned';
+FROM pruned_folds p JOIN trials t ON t.trial_id = p.trial_id
+JOIN unpruned_folds u ON u.growth_id = t.growth_id AND u."repeat" = p."repeat" AND u.fold = p.fold
+JOIN datasets d ON d.dataset_id = t.dataset_id;
 """
 
+#: SQLite column type of a growth factor's level, by the factor's kind
+_KIND_TYPES = {"choice": "TEXT NOT NULL", "int": "INTEGER NOT NULL", "depth": "INTEGER"}
 
 
-def schema_sql() -> str:
-    """The schema of a new results database, its metric columns and views from the vocabulary.
+def _growth_columns() -> str:
+    return ",\n".join(
+        f"    {name} {_KIND_TYPES[FACTORS[name].kind]}" for name in growth_factors()
+    )
 
-    One ``REAL`` column per metric of :data:`prunebench.vocabulary.METRICS` in ``folds``,
-    its mean in ``arm_summary`` and its pruned - unpruned difference in
-    ``fold_differences``, in the vocabulary's order.
-    """
+
+def _views_sql() -> str:
     names = metric_names()
-    return _SCHEMA_TEMPLATE.format(
-        metric_columns="\n".join(f"    {m} REAL," for m in names),
+    return _VIEWS_TEMPLATE.format(
+        unpruned_metrics=", ".join(f"u.{m}" for m in names),
+        pruned_metrics=", ".join(f"p.{m}" for m in names),
         metric_means=",\n       ".join(f"AVG(f.{m}) AS {m}" for m in names),
         metric_differences=",\n       ".join(f"p.{m} - u.{m} AS {m}" for m in names),
     )
 
 
-# schema version n -> SQL that brings a version-n file to n + 1
-_UPGRADES: dict[int, str] = {
-    # 2: the root split's feature index (NULL for a single leaf) and the features a tree uses
-    1: "ALTER TABLE folds ADD COLUMN root_feature INTEGER; "
-    "ALTER TABLE folds ADD COLUMN features_used TEXT;",
-}
+def schema_sql() -> str:
+    """The schema of a new results database, its metric columns and views from the vocabulary.
 
+    One ``REAL`` column per metric of :data:`prunebench.vocabulary.METRICS` in
+    ``unpruned_folds`` and ``pruned_folds`` (and so in the ``folds`` view), its mean
+    in ``arm_summary`` and its pruned - unpruned difference in ``fold_differences``,
+    in the vocabulary's order; one column per factor that changes the tree
+    (:func:`prunebench.vocabulary.growth_factors`) in ``growths``.
+    """
+    names = metric_names()
+    return _SCHEMA_TEMPLATE.format(
+        metric_columns="\n".join(f"    {m} REAL," for m in names),
+        trial_columns="\n".join(f"    {c}," for c in _TRIAL_COLUMNS_V2),
+        growth_columns=_growth_columns(),
+        views=_views_sql(),
+    )
+
+
+# the metric columns of schema 1 (prunebench 0.1.0)
+_METRICS_V1 = ("error", "accuracy", "balanced_accuracy", "log_loss", "brier", "mse", "mae", "r2")
+# the factors schema 2 added to ``trials``, with the level every schema-1 trial had
+_TRIAL_COLUMNS_V2 = (
+    "select_by TEXT NOT NULL DEFAULT 'error'",
+    "class_weight TEXT NOT NULL DEFAULT 'none'",
+)
+
+
+def _upgrade_1(conn: sqlite3.Connection) -> str:
+    """Version 1 -> 2: each result stored once; the factors and metrics added since 0.1.0.
+
+    ``trials`` gains ``select_by`` and ``class_weight`` (every schema-1 trial chose
+    alpha by ``error``, ``mse`` for regression, and grew unweighted trees) before its
+    ``growth_id``; the metrics and tree-shape columns added since are NULL for the
+    old rows.
+
+    The unpruned rows of the trials that share a grown tree (identical but for
+    their timings) become one row per growth setting and outer fold; the pruned
+    rows move to ``pruned_folds``; ``curves`` becomes a ``WITHOUT ROWID`` table;
+    ``folds`` becomes a view with the old columns.  A growth factor the file's
+    trials do not have yet takes its default level (the same in every family).
+    """
+    have = {r[1] for r in conn.execute("PRAGMA table_info(trials)")}
+    growth = growth_factors()
+    levels = []
+    for name in growth:
+        if name in have:
+            levels.append(f"t.{name}")
+            continue
+        defaults = set(map(str, FACTORS[name].default.values()))
+        if len(defaults) != 1:
+            raise StoreError(f"cannot upgrade: no single default level of {name}")
+        levels.append("'" + defaults.pop().replace("'", "''") + "'")
+    match = " AND ".join(f"g.{n} IS {v}" for n, v in zip(growth, levels, strict=True))
+    names = metric_names()
+    old = {r[1] for r in conn.execute("PRAGMA table_info(folds)")}
+
+    def kept(columns: list[str]) -> str:
+        # a column the old folds table lacks (a metric or tree shape added since) is NULL
+        return ", ".join(f"f.{c}" if c in old else f"NULL AS {c}" for c in columns)
+
+    shape = ["root_feature", "features_used"]
+    trial_columns = "".join(
+        f"ALTER TABLE trials ADD COLUMN {c};\n"
+        for c in _TRIAL_COLUMNS_V2
+        if c.split()[0] not in have
+    )
+    return f"""
+{trial_columns}UPDATE trials SET select_by = 'mse' WHERE dataset_id IN
+    (SELECT dataset_id FROM datasets WHERE task = 'regression');
+CREATE TABLE growths (
+    growth_id INTEGER PRIMARY KEY,
+    study_id TEXT NOT NULL REFERENCES studies(study_id),
+    dataset_id TEXT NOT NULL REFERENCES datasets(dataset_id),
+{_growth_columns()}
+);
+INSERT INTO growths (study_id, dataset_id, {", ".join(growth)})
+SELECT DISTINCT t.study_id, t.dataset_id, {", ".join(levels)} FROM trials t
+ORDER BY t.study_id, t.dataset_id, {", ".join(levels)};
+ALTER TABLE trials ADD COLUMN growth_id INTEGER REFERENCES growths(growth_id);
+UPDATE trials AS t SET growth_id = (
+    SELECT g.growth_id FROM growths g
+    WHERE g.study_id = t.study_id AND g.dataset_id = t.dataset_id AND {match}
+);
+CREATE INDEX trials_growth ON trials(growth_id);
+CREATE TABLE unpruned_folds (
+    growth_id INTEGER NOT NULL REFERENCES growths(growth_id),
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
+    n_train INTEGER NOT NULL,
+    n_test INTEGER NOT NULL,
+    test_fingerprint TEXT NOT NULL,
+{"".join(f"    {m} REAL," + chr(10) for m in names)}    n_leaves INTEGER NOT NULL,
+    depth INTEGER NOT NULL,
+    fit_seconds REAL NOT NULL,
+    root_feature INTEGER,
+    features_used TEXT,
+    PRIMARY KEY (growth_id, "repeat", fold)
+) WITHOUT ROWID;
+INSERT OR IGNORE INTO unpruned_folds
+SELECT t.growth_id, f."repeat", f.fold, f.n_train, f.n_test, f.test_fingerprint,
+       {kept(names)},
+       f.n_leaves, f.depth, f.fit_seconds, {kept(shape)}
+FROM folds f JOIN trials t USING (trial_id) WHERE f.arm = 'unpruned'
+ORDER BY t.growth_id, f."repeat", f.fold, f.rowid;
+CREATE TABLE pruned_folds (
+    trial_id TEXT NOT NULL REFERENCES trials(trial_id),
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
+{"".join(f"    {m} REAL," + chr(10) for m in names)}    n_leaves INTEGER NOT NULL,
+    depth INTEGER NOT NULL,
+    alpha REAL NOT NULL,
+    fit_seconds REAL NOT NULL,
+    root_feature INTEGER,
+    features_used TEXT,
+    PRIMARY KEY (trial_id, "repeat", fold)
+) WITHOUT ROWID;
+INSERT INTO pruned_folds
+SELECT f.trial_id, f."repeat", f.fold, {kept(names)}, f.n_leaves, f.depth, f.alpha,
+       f.fit_seconds, {kept(shape)}
+FROM folds f WHERE f.arm = 'pruned';
+CREATE TABLE curves_once (
+    group_id TEXT NOT NULL,
+    "repeat" INTEGER NOT NULL,
+    fold INTEGER NOT NULL,
+    candidate INTEGER NOT NULL,
+    alpha REAL NOT NULL,
+    n_leaves INTEGER NOT NULL,
+    mean REAL NOT NULL,
+    se REAL NOT NULL,
+    PRIMARY KEY (group_id, "repeat", fold, candidate)
+) WITHOUT ROWID;
+INSERT INTO curves_once SELECT * FROM curves;
+DROP VIEW arm_summary;
+DROP VIEW fold_differences;
+DROP TABLE folds;
+DROP TABLE curves;
+ALTER TABLE curves_once RENAME TO curves;
+{_views_sql()}
+"""
+
+
+# schema version n -> SQL (or a function of the connection giving the SQL) that brings a
+# version-n file to n + 1
+_UPGRADES: dict[int, str | Callable[[sqlite3.Connection], str]] = {1: _upgrade_1}
 
 
 def _explain(path: Path, err: sqlite3.Error, reading: bool = False) -> StoreError:
@@ -355,9 +537,11 @@ class ResultStore:
             version = SCHEMA_VERSION
         while version < SCHEMA_VERSION:
             self._wal()
+            step = _UPGRADES[version]
+            sql = step(conn) if callable(step) else step
             with conn:
                 conn.executescript(
-                    f"BEGIN; {_UPGRADES[version]} PRAGMA user_version = {version + 1}; COMMIT;"
+                    f"BEGIN; {sql} PRAGMA user_version = {version + 1}; COMMIT;"
                 )
             version += 1
 
@@ -489,6 +673,8 @@ class ResultStore:
             raise _explain(self.path, err) from None
 
     def _insert_trials(self, study, trials) -> None:
+        trials = list(trials)
+        growth = self._growth_ids(study, trials)
         self.db["trials"].insert_all(
             (
                 {
@@ -498,11 +684,39 @@ class ResultStore:
                     "group_id": t.group_id,
                     **t.levels(),
                     "status": "pending",
+                    "growth_id": growth[t.trial_id],
                 }
                 for t in trials
             ),
             ignore=True,
         )
+
+    def _growth_ids(self, study, trials) -> dict[str, int]:
+        """trial_id -> the ``growths`` row of its study, data set and growth levels (added)."""
+        names = growth_factors()
+        match = " AND ".join(f"{n} IS ?" for n in names)
+        found: dict[tuple, int] = {}
+        out = {}
+        for t in trials:
+            dataset_id = self.dataset_id(t.dataset, study.datasets[t.dataset].fingerprint)
+            levels = dict(t.growth())
+            key = (dataset_id, *(levels.get(n) for n in names))
+            if key not in found:
+                row = self.db.conn.execute(
+                    f"SELECT growth_id FROM growths WHERE study_id = ? AND dataset_id = ? "
+                    f"AND {match}",
+                    [study.study_id, *key],
+                ).fetchone()
+                if row is None:
+                    cursor = self.db.conn.execute(
+                        f"INSERT INTO growths (study_id, dataset_id, {', '.join(names)}) "
+                        f"VALUES ({', '.join('?' * (len(names) + 2))})",
+                        [study.study_id, *key],
+                    )
+                    row = (cursor.lastrowid,)
+                found[key] = row[0]
+            out[t.trial_id] = found[key]
+        return out
 
     @staticmethod
     def dataset_id(key: str, fingerprint: str) -> str:
@@ -538,18 +752,38 @@ class ResultStore:
             raise _explain(self.path, err) from None
 
     def save_group(self, result, trials, started: str, finished: str) -> None:
-        """Store a finished group: its fold and curve rows and ``done``, in one transaction.
+        """Store a finished group: its rows and its trials' ``done``, in one transaction.
 
-        Earlier rows of the same trials (from a failed attempt) are replaced.
+        The unpruned rows are stored once for the group's growth setting (replacing
+        any earlier copy), the pruned rows per trial and the curves per curve id;
+        earlier rows of the same trials (from a failed attempt) are replaced.
         """
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
+        curve_ids = list(dict.fromkeys(t.group_id for t in trials))
+        curve_marks = ",".join("?" * len(curve_ids))
         try:
             self._wal()
             with self.db.conn:
-                self.db.conn.execute(f"DELETE FROM folds WHERE trial_id IN ({marks})", ids)
-                self.db.conn.execute("DELETE FROM curves WHERE group_id = ?", [result.group_id])
-                self.db["folds"].insert_all(result.folds, batch_size=500)
+                growth = self.db.conn.execute(
+                    f"SELECT DISTINCT growth_id FROM trials WHERE trial_id IN ({marks})", ids
+                ).fetchall()
+                if len(growth) != 1:
+                    raise StoreError(
+                        f"{self.path}: the trials of group {result.group_id} do not share "
+                        "one registered growth setting"
+                    )
+                growth_id = growth[0][0]
+                self.db.conn.execute(f"DELETE FROM pruned_folds WHERE trial_id IN ({marks})", ids)
+                self.db.conn.execute(
+                    f"DELETE FROM curves WHERE group_id IN ({curve_marks})", curve_ids
+                )
+                self.db["unpruned_folds"].insert_all(
+                    ({"growth_id": growth_id, **row} for row in result.unpruned),
+                    batch_size=500,
+                    replace=True,
+                )
+                self.db["pruned_folds"].insert_all(result.pruned, batch_size=500)
                 self.db["curves"].insert_all(result.curves, batch_size=500)
                 self.db.conn.execute(
                     f"UPDATE trials SET status = 'done', error = NULL, started = ?, "

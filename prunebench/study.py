@@ -20,6 +20,22 @@ A study file is TOML::
     inner_folds = [5, 10]                 # folds of the inner CV that chooses alpha
     rule = ["min", "1se"]
     prune_risk = ["error"]
+    select_by = ["error", "auc"]          # the loss the inner CV chooses alpha by
+    class_weight = ["none", "balanced"]   # how the trees weight the classes as they grow
+
+    smoothing = "laplace"                 # optional (top level): "laplace" or "m<m>"
+
+    [costs]                               # optional: CART's loss matrix and priors
+    loss = { bad = { good = 5 }, good = { bad = 1 } }  # true class = { predicted = cost }
+    priors = "data"                       # or "equal", or { bad = 0.3, good = 0.7 }
+
+    [costs."rare_logistic"]               # optional: one dataset's own (other labels)
+    loss = { 1 = { 0 = 10 }, 0 = { 1 = 1 } }
+
+``[costs]`` applies to every classification data set without a table of its own,
+and each must have exactly the labels it names (every mistake costed, no cost on
+the diagonal); a ``[costs."<dataset>"]`` table serves a data set whose labels
+differ, so one study can span data sources that spell their classes differently.
 
 Classification and regression data sets may share a study only when the
 task-specific factors are given per task: ``[factors.classification]`` and
@@ -45,7 +61,8 @@ from .datasets import (
     read_manifest,
     register_manifest,
 )
-from .exceptions import StudyError
+from .exceptions import InvalidParameterError, StudyError
+from .losses import parse_smoothing
 from .selection import parse_rule
 from .trials import FACTORS, SearchSpec, Study, Trial, TrialGroup
 from .vocabulary import (
@@ -57,6 +74,7 @@ from .vocabulary import (
     counted,
     default_margin,
     family_of,
+    growth_factors,
     metric_names,
 )
 from .vocabulary import FACTORS as _FACTOR_SPECS
@@ -91,6 +109,8 @@ _TOP_KEYS = {
     "time_limit",
     "max_tree_fits",
     "decision",
+    "costs",
+    "smoothing",
 }
 #: tree fits a study may plan without saying so (``max_tree_fits``): about 14 times the
 #: largest example study (studies/overnight.toml, 714,000 fits); at a few milliseconds a
@@ -98,12 +118,12 @@ _TOP_KEYS = {
 #: number than an intent
 MAX_TREE_FITS = 10_000_000
 _DECISION_KEYS = ("metric", "margin", "alpha")
+_COST_KEYS = ("loss", "priors")
 _SAMPLERS = ("tpe", "random", "grid")
 _SEARCH_KEYS = {"sampler", "configurations", "early_stopping", "seed", "space"}
 # a search varies the k of the k-SE rule ("se") where a sweep names rules
 _SPACE_KEYS = tuple("se" if name == "rule" else name for name in FACTORS)
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,79}$")
-
 
 
 class _Checker:
@@ -166,9 +186,7 @@ def _check_factor(check: _Checker, key: str, name: str, levels: list, task: str)
                 raise check.fail(key, f'{v!r} is not a depth: use an integer >= 1 or "none"')
         elif spec.kind == "int":
             if not (_is_int(v) and v >= spec.least):
-                raise check.fail(
-                    key, f"{v!r} is not a {spec.noun}: use an integer >= {spec.least}"
-                )
+                raise check.fail(key, f"{v!r} is not a {spec.noun}: use an integer >= {spec.least}")
         elif spec.kind == "rule":
             try:
                 parse_rule(v)
@@ -346,6 +364,8 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
     repeats, folds = _outer_section(check, doc.get("outer", {}))
     factors_doc, per_task = _factors_section(check, doc.get("factors", {}))
     search = _search_section(check, doc, top["seed"])
+    costs_doc = _costs_section(check, doc.get("costs"))
+    smoothing = _smoothing(check, doc.get("smoothing"))
     base = base or Path(".")
     entries = _datasets(check, doc["datasets"], base)
 
@@ -359,6 +379,9 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         _check_leaves(check, key, data, folds, factors, per_task, search)
     _check_fits(check, top["max_tree_fits"], repeats, folds, loaded, factors, search)
     _decision_section(check, doc.get("decision", {}), tasks)
+    for key, data in loaded.items():
+        _check_select_by(check, key, data, factors, per_task)
+    costs = _costs_of_datasets(check, costs_doc, loaded)
     database = top["database"]
     return Study(
         name=top["name"],
@@ -373,6 +396,8 @@ def parse_study(text: str, source: str = "<study>", base: Path | None = None) ->
         database=Path(os.path.normpath(base / database)) if database else None,
         search=search,
         time_limit=float(top["time_limit"]) if top["time_limit"] is not None else None,
+        costs=costs,
+        smoothing=smoothing,
     )
 
 
@@ -470,10 +495,6 @@ def _search_section(check: _Checker, doc: dict, seed: int) -> SearchSpec | None:
             "a study with [search] takes its levels from [search.space]; remove [factors]",
         )
     return search
-
-
-def _number(value: object) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
 def _decision_section(check: _Checker, doc: object, families) -> dict:
@@ -593,6 +614,146 @@ def levels_of_text(text: str, family: str) -> dict[str, list]:
             value = [parse_rule(v).name for v in value]
         levels[factor] = value
     return levels
+
+
+def _smoothing(check: _Checker, value: object) -> str | None:
+    """``smoothing``: ``"laplace"`` or an m-estimate ``"m<m>"`` (opt-in; none by default)."""
+    if value is None or value == "none":
+        return None
+    try:
+        parse_smoothing(value)
+    except InvalidParameterError:
+        raise check.fail(
+            "smoothing",
+            f'{value!r} is not a smoothing: use "laplace" or an m-estimate like "m2" or "m10"',
+        ) from None
+    return value
+
+
+def _costs_section(check: _Checker, doc: object) -> dict:
+    """``[costs]``: its shape only (the labels are checked once the data are loaded).
+
+    Returns ``{"": common table or None, data set key: table, ...}``.
+    """
+    if doc is None:
+        return {"": None}
+    if not isinstance(doc, dict):
+        raise check.fail("costs", "must be a table with loss and/or priors")
+    common = {k: v for k, v in doc.items() if k in _COST_KEYS}
+    out: dict = {"": common or None}
+    for key, value in doc.items():
+        if key in _COST_KEYS:
+            continue
+        if not isinstance(value, dict):
+            raise check.fail(
+                f"costs.{key}",
+                "is neither loss nor priors nor a table of one dataset's loss and priors",
+            )
+        for sub in value:
+            if sub not in _COST_KEYS:
+                raise check.fail(f"costs.{key}.{sub}", "is not a costs key; use loss and priors")
+        out[key] = value
+    return out
+
+
+def _costs_of_datasets(check: _Checker, doc: dict, loaded: dict) -> dict:
+    """Every classification data set's (labels, loss matrix, priors), checked against its labels.
+
+    ``[costs]`` applies to every classification data set without a
+    ``[costs."<dataset>"]`` table of its own; each of them must have exactly the
+    labels the table names.
+    """
+    classification = [k for k, d in loaded.items() if family_of(d.task) == CLASSIFICATION]
+    for key in doc:
+        if key and key not in loaded:
+            raise check.fail(
+                f"costs.{key}",
+                f"is not a dataset of the study; the datasets are {', '.join(loaded)}",
+            )
+        if key and key not in classification:
+            raise check.fail(f"costs.{key}", f"dataset {key!r} is not a classification dataset")
+    if doc[""] is not None and not classification:
+        raise check.fail("costs", "the study has no classification dataset")
+    out = {}
+    for key in classification:
+        spec, where = (doc[key], f"costs.{key}") if key in doc else (doc[""], "costs")
+        if spec is None:
+            continue
+        labels = np.unique(loaded[key].y)
+        names = [str(c) for c in labels]
+        loss = _loss_matrix(check, where, spec.get("loss"), names, key)
+        priors = _priors(check, where, spec.get("priors", "data"), names, key)
+        out[key] = (tuple(labels.tolist()), loss, priors)
+    return out
+
+
+def _number(v: object) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and np.isfinite(v)
+
+
+def _loss_matrix(check: _Checker, where: str, loss: object, names: list, dataset: str):
+    """``loss = { <true> = { <predicted> = cost } }``: every mistake costed, zero diagonal."""
+    if loss is None:
+        return None
+    key = f"{where}.loss"
+    classes = f"the classes of dataset {dataset!r} are {', '.join(names)}"
+    if not isinstance(loss, dict):
+        raise check.fail(key, "must be a table: true class = { predicted class = cost, ... }", key)
+    matrix = np.zeros((len(names), len(names)))
+    for true, row in loss.items():
+        if true not in names:
+            raise check.fail(f"{key}.{true}", f"{true!r} is not a class: {classes}", key)
+        if not isinstance(row, dict):
+            raise check.fail(f"{key}.{true}", "must be a table: predicted class = cost, ...", key)
+        for pred, cost in row.items():
+            cell = f"{key}.{true}.{pred}"
+            if pred not in names:
+                raise check.fail(cell, f"{pred!r} is not a class: {classes}", key)
+            if not _number(cost) or cost < 0:
+                raise check.fail(cell, f"a cost is a finite number >= 0; got {cost!r}", key)
+            if pred == true and cost != 0:
+                raise check.fail(
+                    cell, "a right prediction costs nothing: use 0 or leave it out", key
+                )
+            matrix[names.index(true), names.index(pred)] = float(cost)
+    for i, true in enumerate(names):
+        for j, pred in enumerate(names):
+            if i != j and not (true in loss and pred in loss[true]):
+                raise check.fail(
+                    f"{key}.{true}.{pred}",
+                    "is missing: give the cost of every mistake (rows: true class, "
+                    "columns: predicted class)",
+                    key,
+                )
+    return tuple(tuple(row) for row in matrix.tolist())
+
+
+def _priors(check: _Checker, where: str, priors: object, names: list, dataset: str):
+    """``priors``: ``"data"``, ``"equal"`` or class = probability for every class."""
+    key = f"{where}.priors"
+    if priors in ("data", "equal"):
+        return priors
+    if not isinstance(priors, dict):
+        raise check.fail(
+            key, f'must be "data", "equal" or a table class = probability; got {priors!r}', key
+        )
+    for label, p in priors.items():
+        if label not in names:
+            raise check.fail(
+                f"{key}.{label}",
+                f"{label!r} is not a class of dataset {dataset!r}; its classes are "
+                f"{', '.join(names)}",
+                key,
+            )
+        if not _number(p) or p < 0:
+            raise check.fail(f"{key}.{label}", f"a prior is a number >= 0; got {p!r}", key)
+    missing = [n for n in names if n not in priors]
+    if missing:
+        raise check.fail(f"{key}.{missing[0]}", "is missing: give every class a prior", key)
+    total = sum(priors.values())
+    if abs(total - 1.0) > 1e-9:
+        raise check.fail(key, f"the priors must sum to 1; they sum to {total:g}", key)
+    return tuple(float(priors[n]) for n in names)
 
 
 # ---- loading the data sets ---------------------------------------------------------------
@@ -751,11 +912,13 @@ def _check_fits(
             inner = _largest(search, "inner_folds", levels["inner_folds"])
             fits += search.configurations * (1 + inner)
             continue
+        # one group per growth setting: T_max once, then the fold trees of each inner fold
+        # count once, shared by every pruning risk, CV loss and rule
         shared = 1
-        for factor in ("criterion", "max_depth", "min_samples_leaf", "prune_risk"):
+        for factor in growth_factors():
             shared *= len(levels[factor])
-        fits += shared * sum(1 + k for k in levels["inner_folds"])
-    fits *= repeats * folds  # each outer fold grows the full tree and one per inner fold
+        fits += shared * (1 + sum(levels["inner_folds"]))
+    fits *= repeats * folds
     if fits <= (limit or MAX_TREE_FITS):
         return
     if limit is not None:
@@ -798,6 +961,25 @@ def study_database(path: str | Path) -> Path | None:
     if isinstance(database, str) and database.strip():
         return Path(os.path.normpath(path.parent / database))
     return path.with_suffix(".sqlite")
+
+
+def _check_select_by(
+    check: _Checker, key: str, data: LoadedDataset, factors: dict, per_task: dict
+) -> None:
+    """Average precision chooses alpha on two-class data sets only."""
+    task = family_of(data.task)
+    if task != CLASSIFICATION or data.n_classes == 2:
+        return
+    if "average_precision" in factors[task]["select_by"]:
+        where = (
+            f"factors.{task}.select_by"
+            if "select_by" in per_task.get(task, {})
+            else "factors.select_by"
+        )
+        raise check.fail(
+            where,
+            f"'average_precision' needs two classes; dataset {key!r} has {data.n_classes}",
+        )
 
 
 def load_study(path: str | Path) -> Study:

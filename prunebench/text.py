@@ -79,7 +79,8 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
         From :func:`prunebench.execute.plan` (ignored for a search).
     database : Path
         Where the results would go.
-    workers : int
+    workers : int or sequence of int
+        Worker counts to estimate the time for (1 is always given).
     """
     if study.search is not None:
         return "\n".join(_search_plan_text(study))
@@ -101,12 +102,27 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
         lines.append(f"factors ({task}): " + "; ".join(f"{k} {v}" for k, v in levels.items()))
     lines += [
         f"{counted(len(study.trials()), 'trial')} in {counted(len(study.groups()), 'group')} "
-        f"(trials that differ only in the rule share their fits); "
+        f"(trials that share the grown trees share their fits); "
         f"{counted(total_fits, 'tree fit')}",
-        f"rough time: {total_seconds / 60:.1f} min with 1 worker, "
-        f"{total_seconds / 60 / max(workers, 1):.1f} min with {workers}",
+        "rough time: " + ", ".join(_estimates(rows, total_seconds, workers)),
     ]
     return "\n".join(lines)
+
+
+def _estimates(rows: list[dict], total_seconds: float, workers) -> list[str]:
+    """One phrase per worker count: 1 and each one asked, each once."""
+    from .execute import estimated_seconds
+
+    asked = [workers] if isinstance(workers, int) else list(workers)
+    out = []
+    for w in dict.fromkeys([1, *asked]):
+        seconds = (
+            estimated_seconds(rows, w)
+            if all("group_seconds" in r for r in rows)
+            else total_seconds / max(w, 1)
+        )
+        out.append(f"{seconds / 60:.1f} min with {w} worker{'s' if w != 1 else ''}")
+    return out
 
 
 def _search_found_text(found: dict) -> list[str]:

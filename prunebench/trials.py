@@ -2,7 +2,10 @@
 
 :mod:`prunebench.study` builds a :class:`Study` from a study file; a study expands
 into :class:`Trial` objects (one configuration on one data set), grouped into
-:class:`TrialGroup` objects that share every tree fit.
+:class:`TrialGroup` objects that share every grown tree: the same data set and
+the same level of every factor the vocabulary marks as changing the tree
+(:func:`prunebench.vocabulary.growth_factors`).  The other factors (inner fold
+count, pruning risk, rule, CV loss) change only what is computed from the trees.
 """
 
 from __future__ import annotations
@@ -14,9 +17,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .datasets import LoadedDataset
-from .vocabulary import factor_names, family_of
+from .vocabulary import FACTORS as _SPECS
+from .vocabulary import factor_names, family_of, growth_factors
 
-__all__ = ["FACTORS", "SearchSpec", "Study", "Trial", "TrialGroup"]
+__all__ = ["FACTORS", "SearchSpec", "Study", "Trial", "TrialGroup", "growth_id"]
 
 #: the factor names, in configuration order
 FACTORS = tuple(factor_names())
@@ -31,11 +35,17 @@ class Trial:
     trial_id : str
         Deterministic id from the study name, the data set's fingerprint and the levels.
     group_id : str
-        Id of the trials that share every tree fit (they differ only in ``rule``).
+        Id of the trials that share one inner-CV curve (they differ only in ``rule``);
+        the ``curves`` table is keyed by it.  The trials that share the grown trees
+        form a :class:`TrialGroup`.
     dataset : str
         The data set's key in the study (its name, or name plus parameters).
     criterion, max_depth, min_samples_leaf, inner_folds, rule, prune_risk
         The levels; ``max_depth`` is None for unlimited.
+    select_by : str
+        The loss the inner CV chooses alpha by (``error`` or ``mse`` by default).
+    class_weight : str
+        ``"none"`` or ``"balanced"``: how the trees weight the classes as they grow.
     """
 
     trial_id: str
@@ -47,44 +57,78 @@ class Trial:
     inner_folds: int
     rule: str
     prune_risk: str
+    select_by: str = "error"
+    class_weight: str = "none"
 
     def levels(self) -> dict:
         """The factor levels as a dict."""
-        return {f: getattr(self, f) for f in FACTORS}
+        return {f: getattr(self, f) for f in FACTORS if hasattr(self, f)}
+
+    def growth(self) -> tuple:
+        """The levels of the factors that change the grown tree, as ``(name, level)`` pairs."""
+        return tuple((f, getattr(self, f)) for f in growth_factors() if hasattr(self, f))
+
+
+def growth_id(trial: Trial, study_name: str, fingerprint: str) -> str:
+    """Id of the trials that share the grown trees: study, data set and growth levels."""
+    return _hash(study_name, fingerprint, "growth", *trial.growth())
 
 
 @dataclass(frozen=True)
 class TrialGroup:
-    """Trials that share every tree fit: same data set and levels but the rule."""
+    """Trials that share every grown tree: same data set and growth levels.
+
+    Attributes
+    ----------
+    group_id : str
+        Id of the group (study, data set fingerprint and growth levels).
+    dataset : str
+    growth : tuple of (str, object)
+        The level of every factor that changes the tree, in vocabulary order.
+    trials : tuple of Trial
+    """
 
     group_id: str
     dataset: str
-    criterion: str
-    max_depth: int | None
-    min_samples_leaf: int
-    inner_folds: int
-    prune_risk: str
+    growth: tuple
     trials: tuple[Trial, ...]
 
     @classmethod
-    def of(cls, trials: list[Trial]) -> TrialGroup:
-        """The group of trials that share every tree fit (the first one's levels)."""
+    def of(cls, trials: list[Trial], group_id: str | None = None) -> TrialGroup:
+        """The group of trials that share the grown trees (the first one's growth levels)."""
         t = trials[0]
         return cls(
-            group_id=t.group_id,
+            group_id=t.group_id if group_id is None else group_id,
             dataset=t.dataset,
-            criterion=t.criterion,
-            max_depth=t.max_depth,
-            min_samples_leaf=t.min_samples_leaf,
-            inner_folds=t.inner_folds,
-            prune_risk=t.prune_risk,
+            growth=t.growth(),
             trials=tuple(trials),
         )
 
+    def __getattr__(self, name: str):
+        # the growth levels read as attributes: group.criterion, group.max_depth, ...
+        for factor, level in self.__dict__.get("growth", ()):
+            if factor == name:
+                return level
+        # another factor reads as an attribute when every trial of the group has one level
+        if name in FACTORS:
+            levels = {getattr(t, name) for t in self.__dict__.get("trials", ())}
+            if len(levels) == 1:
+                return levels.pop()
+        raise AttributeError(name)
+
+    def growth_levels(self) -> dict:
+        """The growth levels as a dict."""
+        return dict(self.growth)
+
     @property
     def rules(self) -> list[str]:
-        """The rules of the group's trials."""
-        return [t.rule for t in self.trials]
+        """The rules of the group's trials, each once, in trial order."""
+        return list(dict.fromkeys(t.rule for t in self.trials))
+
+    @property
+    def inner_folds_levels(self) -> list[int]:
+        """The distinct inner fold counts of the group's trials, in trial order."""
+        return list(dict.fromkeys(t.inner_folds for t in self.trials))
 
 
 @dataclass(frozen=True)
@@ -156,6 +200,8 @@ class Study:
     database: Path | None = None
     search: SearchSpec | None = None
     time_limit: float | None = None
+    costs: dict[str, tuple] = field(default_factory=dict)
+    smoothing: str | None = None
     _trials: list[Trial] = field(default_factory=list, repr=False)
 
     @property
@@ -188,17 +234,22 @@ class Study:
             A data set key of the study.
         levels : dict
             ``criterion``, ``max_depth`` (None = unlimited), ``min_samples_leaf``,
-            ``inner_folds``, ``rule``, ``prune_risk``.
+            ``inner_folds``, ``rule``, ``prune_risk``, and optionally ``select_by`` and
+            ``class_weight`` (their defaults when missing).
         """
         trial = _make_trial(self, dataset, levels)
-        return TrialGroup.of([trial])
+        return TrialGroup.of([trial], self.growth_id(trial))
+
+    def growth_id(self, trial: Trial) -> str:
+        """Id of the trials of this study that share ``trial``'s grown trees."""
+        return growth_id(trial, self.name, self.datasets[trial.dataset].fingerprint)
 
     def groups(self) -> list[TrialGroup]:
-        """The trials grouped by shared tree fits, in a fixed order."""
+        """The trials grouped by shared grown trees, in a fixed order."""
         groups: dict[str, list[Trial]] = {}
         for trial in self.trials():
-            groups.setdefault(trial.group_id, []).append(trial)
-        return [TrialGroup.of(trials) for trials in groups.values()]
+            groups.setdefault(self.growth_id(trial), []).append(trial)
+        return [TrialGroup.of(trials, gid) for gid, trials in groups.items()]
 
     def task_of(self, dataset: str) -> str:
         """``"classification"`` or ``"regression"`` for a data set of the study."""
@@ -213,9 +264,22 @@ def _make_trial(study: Study, key: str, levels: dict) -> Trial:
     fp = study.datasets[key].fingerprint
     crit, depth, leaf = levels["criterion"], levels["max_depth"], levels["min_samples_leaf"]
     inner, risk, rule = levels["inner_folds"], levels["prune_risk"], levels["rule"]
+    family = study.task_of(key)
+    select_by = levels.get("select_by") or _SPECS["select_by"].default[family]
+    class_weight = levels.get("class_weight") or _SPECS["class_weight"].default[family]
+    # levels at their defaults are left out of the hashes, so the trials of studies
+    # written before these factors existed keep their ids; the curve id (group_id)
+    # includes both: a CV loss or a class weighting gives another inner-CV curve, and
+    # the curves table is keyed by group_id
+    extra = {
+        name: level
+        for name, level in (("select_by", select_by), ("class_weight", class_weight))
+        if level != _SPECS[name].default[family]
+    }
+    more = (extra,) if extra else ()
     return Trial(
-        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk),
-        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk),
+        trial_id=_hash(study.name, fp, crit, depth, leaf, inner, rule, risk, *more),
+        group_id=_hash(study.name, fp, crit, depth, leaf, inner, risk, *more),
         dataset=key,
         criterion=crit,
         max_depth=depth,
@@ -223,18 +287,22 @@ def _make_trial(study: Study, key: str, levels: dict) -> Trial:
         inner_folds=inner,
         rule=rule,
         prune_risk=risk,
+        select_by=select_by,
+        class_weight=class_weight,
     )
 
 
 def _expand(study: Study):
     for key in study.datasets:
         levels = study.factors[study.task_of(key)]
-        for crit, depth, leaf, inner, risk, rule in itertools.product(
+        for crit, depth, leaf, inner, risk, cw, by, rule in itertools.product(
             levels["criterion"],
             levels["max_depth"],
             levels["min_samples_leaf"],
             levels["inner_folds"],
             levels["prune_risk"],
+            levels["class_weight"],
+            levels["select_by"],
             levels["rule"],
         ):
             yield _make_trial(
@@ -247,5 +315,7 @@ def _expand(study: Study):
                     "inner_folds": inner,
                     "rule": rule,
                     "prune_risk": risk,
+                    "select_by": by,
+                    "class_weight": cw,
                 },
             )

@@ -2,7 +2,8 @@
 
 Every other module takes these names from here; this module imports nothing of
 the package, so anything may import it.  Adding a metric is one entry in
-:data:`METRICS` plus its computation in :mod:`prunebench.evaluate`: the results
+:data:`METRICS` plus its computation in :func:`prunebench.losses.fold_metrics`
+(classification) or :mod:`prunebench.evaluate` (regression): the results
 database's columns and views, the statistics, the command line and the exports
 follow from the entry.
 
@@ -18,6 +19,7 @@ from dataclasses import dataclass, fields
 
 __all__ = [
     "CLASSIFICATION",
+    "CLASS_WEIGHTS",
     "CRITERIA",
     "DEFAULT_METRIC",
     "FACTORS",
@@ -25,6 +27,7 @@ __all__ = [
     "METRICS",
     "PRUNE_RISKS",
     "REGRESSION",
+    "SELECT_BY",
     "Configuration",
     "Factor",
     "Metric",
@@ -69,6 +72,17 @@ CRITERIA: dict[str, tuple[str, ...]] = {
 PRUNE_RISKS: dict[str, tuple[str, ...]] = {
     CLASSIFICATION: ("error", "impurity", "cost"),
     REGRESSION: ("squared_error", "impurity"),
+}
+#: losses the inner CV can choose alpha by, per family (``auc`` scored as 1 - AUC,
+#: ``average_precision`` as 1 - AP, binary only); the same as ``scoring.SELECT_BY``
+SELECT_BY: dict[str, tuple[str, ...]] = {
+    CLASSIFICATION: ("error", "cost", "brier", "log_loss", "auc", "average_precision"),
+    REGRESSION: ("mse",),
+}
+#: how the trees weight the classes while they grow (scikit-learn's ``class_weight``)
+CLASS_WEIGHTS: dict[str, tuple[str, ...]] = {
+    CLASSIFICATION: ("none", "balanced"),
+    REGRESSION: ("none",),
 }
 
 
@@ -141,6 +155,17 @@ FACTORS: dict[str, Factor] = {
             "pruning risk",
             PRUNE_RISKS,
         ),
+        Factor(
+            "select_by",
+            "choice",
+            {CLASSIFICATION: "error", REGRESSION: "mse"},
+            False,
+            "loss to choose alpha by",
+            SELECT_BY,
+        ),
+        Factor(
+            "class_weight", "choice", _every_family("none"), True, "class weight", CLASS_WEIGHTS
+        ),
     )
 }
 
@@ -193,6 +218,17 @@ METRICS: dict[str, Metric] = {
         Metric("balanced_accuracy", CLASSIFICATION, True, 0.01),
         Metric("log_loss", CLASSIFICATION, False, 0.02),
         Metric("brier", CLASSIFICATION, False, 0.01),
+        # ROC AUC: binary, or the one-vs-rest macro average over the classes
+        Metric("auc", CLASSIFICATION, True, 0.01),
+        # average precision: binary data sets only (NULL for three or more classes)
+        Metric("average_precision", CLASSIFICATION, True, 0.01),
+        # Murphy's (1973) decomposition of ``brier`` over the tree's distinct leaf
+        # probabilities: calibration = the reliability term, refinement = uncertainty -
+        # resolution, so brier = brier_calibration + brier_refinement
+        Metric("brier_calibration", CLASSIFICATION, False, 0.005),
+        Metric("brier_refinement", CLASSIFICATION, False, 0.01),
+        # mean cost per row under the study's loss matrix (0-1 loss, = error, without one)
+        Metric("expected_cost", CLASSIFICATION, False, 0.02, relative=True),
         Metric("mse", REGRESSION, False, 0.01, relative=True),
         Metric("mae", REGRESSION, False, 0.01, relative=True),
         Metric("r2", REGRESSION, True, 0.01),
@@ -245,6 +281,8 @@ _SHORT = {
     "error": "err",
     "impurity": "imp",
     "gini": "gini",
+    "balanced": "bal",
+    "average_precision": "ap",
 }
 
 
@@ -260,12 +298,18 @@ def _plain(value: object) -> object:
     return value
 
 
+# levels a label leaves out: the defaults, which every study had before these factors
+_DEFAULT_LEVELS = {"select_by": ("error", "mse"), "class_weight": ("none",)}
+
+
 @dataclass(frozen=True)
 class Configuration:
     """One configuration: the level of every factor.
 
     ``rule == "unpruned"`` names the unpruned tree of the growth levels; its
-    ``inner_folds`` and ``prune_risk`` are None.  ``max_depth`` None is unlimited.
+    ``inner_folds``, ``prune_risk`` and ``select_by`` are None.  ``max_depth`` None is
+    unlimited.  ``select_by`` and ``class_weight`` are None when not known (a row
+    or tuple without them); labels leave out their default levels.
     """
 
     criterion: str
@@ -274,6 +318,8 @@ class Configuration:
     inner_folds: int | None
     rule: str
     prune_risk: str | None
+    select_by: str | None = None
+    class_weight: str | None = None
 
     @classmethod
     def of(cls, levels) -> Configuration:
@@ -282,7 +328,9 @@ class Configuration:
             return levels
         if isinstance(levels, tuple):
             return cls(*(_plain(v) for v in levels))
-        return cls(**{f.name: _plain(levels[f.name]) for f in fields(cls)})
+        return cls(
+            **{f.name: _plain(levels[f.name]) if f.name in levels else None for f in fields(cls)}
+        )
 
     @property
     def pruned(self) -> bool:
@@ -300,18 +348,34 @@ class Configuration:
     def unpruned(self) -> Configuration:
         """The unpruned tree with the same growth levels."""
         return Configuration(
-            self.criterion, self.max_depth, self.min_samples_leaf, None, "unpruned", None
+            self.criterion,
+            self.max_depth,
+            self.min_samples_leaf,
+            None,
+            "unpruned",
+            None,
+            None,
+            self.class_weight,
         )
 
     def label(self) -> str:
-        """A short label, e.g. ``"entr d=none l=5 k=10 1se err"``."""
+        """A short label, e.g. ``"entr d=none l=5 k=10 1se err"``.
+
+        Levels other than the defaults add ``cw=bal`` (class weight) after the growth
+        levels and ``by=auc`` (the loss that chose alpha) at the end.
+        """
         depth = "none" if self.max_depth is None else int(self.max_depth)
         criterion = _SHORT.get(self.criterion, self.criterion)
         head = f"{criterion} d={depth} l={int(self.min_samples_leaf)}"
+        if self.class_weight not in (None, *_DEFAULT_LEVELS["class_weight"]):
+            head += f" cw={_SHORT.get(self.class_weight, self.class_weight)}"
         if not self.pruned:
             return f"{head} unpruned"
         risk = _SHORT.get(self.prune_risk, self.prune_risk)
-        return f"{head} k={int(self.inner_folds)} {self.rule} {risk}"
+        label = f"{head} k={int(self.inner_folds)} {self.rule} {risk}"
+        if self.select_by not in (None, *_DEFAULT_LEVELS["select_by"]):
+            label += f" by={_SHORT.get(self.select_by, self.select_by)}"
+        return label
 
 
 def config_label(config) -> str:

@@ -243,3 +243,211 @@ def test_stored_folds_carry_the_pruned_trees_shape(small_db):
             assert root is None and features == []
         else:
             assert root in features and features == sorted(set(features))
+
+
+def test_trees_grown_on_the_float32_copy_are_the_trees_grown_on_the_data():
+    # scikit-learn converts X to float32 before growing (sklearn.tree._classes DTYPE), so the
+    # copy prepared once per data set must give the very same trees, node for node
+    from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+
+    from prunebench.datasets import load_dataset
+    from prunebench.evaluate import prepared_X
+
+    for name, model in (
+        ("breast_cancer", DecisionTreeClassifier),
+        ("diabetes", DecisionTreeRegressor),
+    ):
+        data = load_dataset(name)
+        X32 = prepared_X(data)
+        assert X32.dtype == np.float32 and X32.flags["C_CONTIGUOUS"]
+        assert data.X.dtype != np.float32  # the comparison is not trivially equal
+        for depth in (None, 4):
+            a = model(max_depth=depth, random_state=3).fit(data.X, data.y)
+            b = model(max_depth=depth, random_state=3)
+            b.fit(X32, data.y, check_input=False)
+            for attr in (
+                "children_left",
+                "children_right",
+                "feature",
+                "threshold",
+                "value",
+                "impurity",
+                "n_node_samples",
+                "weighted_n_node_samples",
+            ):
+                np.testing.assert_array_equal(getattr(a.tree_, attr), getattr(b.tree_, attr))
+            np.testing.assert_array_equal(a.predict(data.X), b.predict(X32, check_input=False))
+
+
+def test_balanced_accuracy_is_bit_identical_to_scikit_learns():
+    # reference: sklearn.metrics.balanced_accuracy_score (mean recall of the true classes)
+    from sklearn.metrics import balanced_accuracy_score
+
+    from prunebench.evaluate import balanced_accuracy
+
+    rng = np.random.default_rng(5)
+    for n, k in ((7, 2), (50, 3), (333, 5), (1000, 10)):
+        for _ in range(20):
+            y = rng.integers(0, k, n)
+            pred = np.where(rng.random(n) < 0.6, y, rng.integers(0, k, n))
+            labels = np.array([10 * c + 1 for c in range(k)])  # classes need not be 0..k-1
+            classes = np.unique(labels[y])
+            truth = np.searchsorted(classes, labels[y])
+            got = balanced_accuracy(truth, pred == y, classes.size)
+            assert got == balanced_accuracy_score(labels[y], labels[pred])  # exact, not approx
+
+
+def test_a_group_grows_each_tree_once_for_every_risk_rule_and_inner_fold_count():
+    study = parse_study(
+        STUDY.format(rules='["min", "1se", "fixed0.01"]')
+        .replace("inner_folds = [4]", 'inner_folds = [3, 4]\nprune_risk = ["error", "impurity"]')
+        .replace('criterion = ["gini", "entropy"]', 'criterion = ["gini"]')
+    )
+    data = study.datasets["breast_cancer"]
+    settings = _settings(study)
+    groups = study.groups()
+    assert len(groups) == 2 and all(len(g.trials) == 2 * 2 * 3 for g in groups)
+    result = evaluate_group(groups[0], data, settings)
+    # per outer fold: T_max once, then 3 + 4 fold trees, whatever the risks and rules
+    assert result.n_fits == 2 * 4 * (1 + 3 + 4)
+    assert len(result.unpruned) == 2 * 4 and len(result.pruned) == 12 * 2 * 4
+    # one curve per (inner folds, risk): the trials' group_id
+    assert len({c["group_id"] for c in result.curves}) == 2 * 2
+    # every trial's rows equal those of the trial evaluated on its own (the old grouping)
+    rows = {(r["trial_id"], r["repeat"], r["fold"], r["arm"]): r for r in result.folds}
+    for trial in groups[0].trials[::5]:
+        alone = evaluate_group(study.trial_group(trial.dataset, trial.levels()), data, settings)
+        for row in alone.folds:
+            mine = rows[(row["trial_id"], row["repeat"], row["fold"], row["arm"])]
+            assert {k: v for k, v in mine.items() if k != "fit_seconds"} == {
+                k: v for k, v in row.items() if k != "fit_seconds"
+            }
+
+
+def test_fixed_rules_grow_no_fold_trees():
+    study = parse_study(STUDY.format(rules='["fixed0.01", "fixed0"]'))
+    result = evaluate_group(study.groups()[0], study.datasets["breast_cancer"], _settings(study))
+    assert result.n_fits == 2 * 4  # T_max only
+    zero = [r for r in result.folds if r["arm"] == "pruned" and r["alpha"] == 0.0]
+    assert len(zero) == 2 * 4
+
+
+# ---- select_by x class_weight under a loss matrix, conducted end to end ---------------------
+
+RARE = """\
+name = "rare-unit"
+seed = 8
+datasets = ["yeast6"]
+[outer]
+repeats = 1
+folds = 3
+[factors]
+max_depth = [4]
+inner_folds = [3]
+prune_risk = ["cost"]
+rule = ["min"]
+select_by = ["error", "auc"]
+class_weight = ["none", "balanced"]
+[costs]
+loss = { positive = { negative = 8 }, negative = { positive = 1 } }
+"""
+
+
+def test_stored_auc_and_expected_cost_are_those_of_the_pruned_tree(tmp_path):
+    import io
+    import sqlite3
+
+    from sklearn.metrics import average_precision_score, confusion_matrix, roc_auc_score
+    from sklearn.tree import DecisionTreeClassifier
+
+    from prunebench.execute import Progress, conduct
+    from prunebench.pruning import pruning_path
+
+    study = parse_study(RARE)
+    db = tmp_path / "rare.sqlite"
+    conduct(study, db, progress=Progress(0, io.StringIO()))
+    rows = (
+        sqlite3.connect(db)
+        .execute(
+            'SELECT t.select_by, t.class_weight, f.arm, f."repeat", f.fold, f.alpha, f.auc, '
+            "f.average_precision, f.expected_cost, f.error, f.n_leaves "
+            "FROM folds f JOIN trials t USING (trial_id)"
+        )
+        .fetchall()
+    )
+    assert len(rows) == 4 * 3 * 2
+    assert {(r[0], r[1]) for r in rows} == {
+        ("error", "none"),
+        ("error", "balanced"),
+        ("auc", "none"),
+        ("auc", "balanced"),
+    }
+    data = study.datasets["yeast6"]
+    settings = EvaluationSettings.of(study)
+    splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, settings)}
+    L = np.array([[0.0, 1.0], [8.0, 0.0]])  # classes (negative, positive); rows: truth
+    for _by, class_weight, arm, repeat, fold, alpha, auc, ap, cost, error, leaves in rows:
+        train, test = splits[(repeat, fold)]
+        full = DecisionTreeClassifier(
+            max_depth=4,
+            random_state=derive_seed(study.seed, data.fingerprint, repeat, fold, "tree"),
+            class_weight=None if class_weight == "none" else "balanced",
+        ).fit(data.X[train], data.y[train])
+        path = pruning_path(full, "cost", loss_matrix=L, classes=np.array(["negative", "positive"]))
+        tree = path.prune(alpha) if arm == "pruned" else full
+        assert tree.get_n_leaves() == leaves
+        positive = data.y[test] == "positive"
+        proba = tree.predict_proba(data.X[test])[:, 1]
+        if leaves > 1:
+            # scikit-learn as reference library
+            assert auc == pytest.approx(roc_auc_score(positive, proba), abs=1e-12)
+            assert ap == pytest.approx(average_precision_score(positive, proba), abs=1e-12)
+        else:
+            assert auc == pytest.approx(0.5)  # one score for every row: all pairs tied
+        # expected cost by hand: the confusion counts weighted by the loss matrix, with
+        # every leaf predicting its cheapest class (not its majority)
+        pred = path.predict(data.X[test], alpha if arm == "pruned" else 0.0)
+        if arm == "unpruned":
+            # T_max's own leaves (alpha 0 may already merge splits that gain nothing)
+            pred = full.classes_[
+                (
+                    full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None] @ L
+                ).argmin(axis=1)[full.apply(data.X[test])]
+            ]
+        counts = confusion_matrix(data.y[test], pred, labels=["negative", "positive"])
+        assert cost == pytest.approx((counts * L).sum() / test.size, abs=1e-12)
+        assert error == pytest.approx((counts.sum() - np.trace(counts)) / test.size, abs=1e-12)
+    # the loss matrix makes the trees flag rows: the cheapest class is not the majority's
+    assert any(c != e for *_, c, e, _ in rows)
+
+
+def test_laplace_smoothing_reaches_the_stored_probability_metrics():
+    from sklearn.tree import DecisionTreeClassifier
+
+    text = STUDY.format(rules='["min"]').replace("seed = 11", 'seed = 11\nsmoothing = "laplace"')
+    study = parse_study(text)
+    plain = _study('["min"]')
+    data = study.datasets["breast_cancer"]
+    group = study.groups()[0]
+    smoothed = evaluate_group(group, data, EvaluationSettings.of(study))
+    raw = evaluate_group(plain.groups()[0], data, EvaluationSettings.of(plain))
+    splits = {(r, f): (tr, te) for r, f, tr, te in outer_splits(data, _settings(study))}
+    for row, raw_row in zip(smoothed.folds, raw.folds, strict=True):
+        if row["arm"] != "unpruned":
+            continue
+        train, test = splits[(row["repeat"], row["fold"])]
+        full = DecisionTreeClassifier(
+            criterion=group.criterion,
+            max_depth=group.max_depth,
+            random_state=derive_seed(
+                study.seed, data.fingerprint, row["repeat"], row["fold"], "tree"
+            ),
+        ).fit(data.X[train], data.y[train])
+        counts = full.tree_.value[:, 0, :] * full.tree_.weighted_n_node_samples[:, None]
+        # Laplace by hand: (n_c + 1) / (n + 2) in the row's leaf
+        p = ((counts + 1) / (counts.sum(axis=1, keepdims=True) + 2))[full.apply(data.X[test])]
+        # scikit-learn as reference library
+        assert row["log_loss"] == pytest.approx(log_loss(data.y[test], p), rel=1e-12)
+        assert row["brier"] == pytest.approx(2 * brier_score_loss(data.y[test], p[:, 1]), rel=1e-12)
+        # pure leaves no longer rule the log loss; the predictions are the same
+        assert row["log_loss"] < raw_row["log_loss"] and row["error"] == raw_row["error"]

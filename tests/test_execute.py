@@ -198,3 +198,30 @@ def test_rows_equal_those_written_by_the_previous_release(tmp_path):
     assert summary.done == 80 and summary.failed == 0
     old = shutil.copy(fixtures / "previous_release.sqlite", tmp_path / "old.sqlite")
     assert stored_rows(db) == stored_rows(old)
+
+
+def test_check_json_prints_the_plan_and_one_estimate_per_worker_count(tmp_path):
+    import json
+
+    study_file = tmp_path / "s.toml"
+    study_file.write_text(SWEEP.replace('["digits", "wine"]', '["wine"]').replace("[1, 3]", "[1]"))
+    result = CliRunner().invoke(main, ["check", str(study_file), "--json", "--workers", "2"])
+    assert result.exit_code == 0, result.output
+    plan = json.loads(result.output)
+    # 2 criteria x 4 depths grow distinct trees; inner folds and rules share them
+    assert (plan["trials"], plan["groups"]) == (16, 8)
+    assert plan["n_fits"] == 8 * 2 * 3 * (1 + 3) == plan["datasets"][0]["fits"]
+    assert set(plan["seconds"]) == {"2"} and plan["seconds"]["2"] > 0
+    text = CliRunner().invoke(main, ["check", str(study_file), "--workers", "1"]).output
+    last = text.splitlines()[-1]
+    assert last.startswith("rough time: ") and last.count("with 1 worker") == 1, last
+    assert "8 groups" in text
+
+
+def test_the_estimate_hands_groups_to_the_worker_that_frees_up_first():
+    from prunebench.execute import estimated_seconds
+
+    rows = [{"group_seconds": [4.0, 3.0, 3.0, 2.0]}]
+    # longest first: worker A 4 + 2, worker B 3 + 3 (hand calculation)
+    assert estimated_seconds(rows, 1) == 12.0 and estimated_seconds(rows, 2) == 6.0
+    assert estimated_seconds(rows, 8) == 4.0  # no faster than the longest group

@@ -162,3 +162,80 @@ def test_class_index_refuses_unknown_labels():
     np.testing.assert_array_equal(losses.class_index(["b", "a", "c"], ["a", "b", "c"]), [1, 0, 2])
     with pytest.raises(InvalidParameterError, match="'y'"):
         losses.class_index(["a", "z"], ["a", "b"])
+
+
+# ---- fold_metrics: every classification metric of the vocabulary on one outer fold ----------
+
+
+def _old_scores(proba, y, classes, pred):
+    """The per-fold metrics as prunebench 0.1.0 computed them (evaluate._classification_scores)."""
+    from sklearn.metrics import balanced_accuracy_score
+
+    truth = np.searchsorted(classes, y)
+    onehot = np.zeros_like(proba)
+    onehot[np.arange(len(y)), truth] = 1.0
+    clipped = np.clip(proba, 1e-15, 1.0)
+    clipped /= clipped.sum(axis=1, keepdims=True)
+    accuracy = float(np.mean(pred == y))
+    return {
+        "error": 1.0 - accuracy,
+        "accuracy": accuracy,
+        "balanced_accuracy": float(balanced_accuracy_score(y, pred)),
+        "log_loss": float(-np.mean(np.log(clipped[np.arange(len(y)), truth]))),
+        "brier": float(np.mean(np.sum((proba - onehot) ** 2, axis=1))),
+    }
+
+
+@pytest.mark.parametrize("n_classes", [2, 3])
+def test_fold_metrics_are_the_stored_ones_and_scikit_learns(n_classes):
+    from sklearn.metrics import average_precision_score, roc_auc_score
+    from sklearn.tree import DecisionTreeClassifier
+
+    rng = np.random.default_rng(n_classes)
+    X = rng.normal(size=(400, 3))
+    y = np.where(X[:, 0] + rng.normal(size=400) > 1.2, "late", "paid")
+    if n_classes == 3:
+        y[X[:, 1] > 1.0] = "disputed"
+    tree = DecisionTreeClassifier(max_depth=3, random_state=0).fit(X[:300], y[:300])
+    classes = np.unique(y)
+    proba, pred = tree.predict_proba(X[300:]), tree.predict(X[300:])
+    got = losses.fold_metrics(proba, y[300:], classes, pred=pred)
+    # bit-identical to what 0.1.0 stored (the previous-release fixture test checks it too)
+    for name, value in _old_scores(proba, y[300:], classes, pred).items():
+        assert got[name] == value, name
+    truth = np.searchsorted(classes, y[300:])
+    # scikit-learn as reference library
+    if n_classes == 2:
+        assert got["auc"] == pytest.approx(roc_auc_score(truth, proba[:, 1]), abs=1e-12)
+        assert got["average_precision"] == pytest.approx(
+            average_precision_score(truth, proba[:, 1]), abs=1e-12
+        )
+    else:
+        assert got["auc"] == pytest.approx(
+            roc_auc_score(truth, proba, multi_class="ovr", average="macro"), abs=1e-12
+        )
+        assert got["average_precision"] is None
+    # Murphy (1973): calibration + refinement (= uncertainty - resolution) is the Brier score
+    assert got["brier_calibration"] + got["brier_refinement"] == pytest.approx(
+        got["brier"], abs=1e-12
+    )
+    assert got["brier_calibration"] >= 0
+    # without a loss matrix the expected cost is 0-1 loss: the error
+    assert got["expected_cost"] == pytest.approx(got["error"], abs=1e-15)
+
+
+def test_fold_metrics_expected_cost_and_calibration_by_hand():
+    # four rows, two classes (0 = good, 1 = bad), hand calculation:
+    # truth 0 0 1 1, predicted 1 0 0 1; L(bad -> good) = 5, L(good -> bad) = 1
+    # cost = (1 + 0 + 5 + 0) / 4 = 1.5
+    proba = np.array([[0.25, 0.75], [0.75, 0.25], [0.75, 0.25], [0.25, 0.75]])
+    y = np.array([0, 0, 1, 1])
+    got = losses.fold_metrics(proba, y, np.array([0, 1]), loss_matrix=[[0, 1], [5, 0]])
+    assert got["expected_cost"] == 1.5
+    assert got["error"] == 0.5
+    # two forecasts, each right half the time: reliability = 2 * (0.75 - 0.5)^2 = 0.125 per
+    # row (summed over both class columns); resolution 0, uncertainty 2 * 0.5 * 0.5 = 0.5
+    assert got["brier_calibration"] == pytest.approx(0.125)
+    assert got["brier_refinement"] == pytest.approx(0.5)
+    assert got["brier"] == pytest.approx(0.625)  # (1.125 + 0.125 + 1.125 + 0.125) / 4
+    assert got["auc"] == pytest.approx(0.5)  # one pair in order, one reversed, two tied

@@ -17,7 +17,16 @@ from prunebench.store import ResultStore
 
 sm_meta = pytest.importorskip("statsmodels.stats.meta_analysis")
 
-FACTORS = ["criterion", "max_depth", "min_samples_leaf", "inner_folds", "rule", "prune_risk"]
+FACTORS = [
+    "criterion",
+    "max_depth",
+    "min_samples_leaf",
+    "inner_folds",
+    "rule",
+    "prune_risk",
+    "select_by",
+    "class_weight",
+]
 MARGIN = 0.01
 
 pytestmark = [
@@ -41,10 +50,12 @@ def _per_fold_losses(folds):
     table = defaultdict(lambda: defaultdict(dict))
     for row in folds.itertuples(index=False):
         growth = (row.criterion, _none(row.max_depth), int(row.min_samples_leaf))
+        weight = None if row.class_weight == "none" else row.class_weight
         if row.arm == "pruned":
-            config = (*growth, int(row.inner_folds), row.rule, row.prune_risk)
+            levels = (int(row.inner_folds), row.rule, row.prune_risk, row.select_by)
+            config = (*growth, *levels, weight)
         else:  # one unpruned tree per growth setting
-            config = (*growth, None, "unpruned", None)
+            config = (*growth, None, "unpruned", None, None, weight)
         table[config][row.dataset].setdefault(
             (row.repeat, row.fold), (row.error, row.n_leaves, row.n_train, row.n_test)
         )
@@ -132,7 +143,8 @@ def test_recommendation_is_the_fewest_leaves_of_the_acceptable_set(small_folds):
     chosen = small_folds[small_folds["arm"] == "pruned"]
     for factor, level in zip(FACTORS, choice, strict=True):
         column = chosen[factor]
-        chosen = chosen[column.isna() if level is None else column == level]
+        # None stands for unlimited depth and for no class weight ("none")
+        chosen = chosen[(column.isna() | (column == "none")) if level is None else column == level]
     assert len(r["stability"]) == 3
     for s in r["stability"]:
         roots = chosen.loc[chosen["dataset"] == s["dataset"], "root_feature"].astype(str)
@@ -187,7 +199,7 @@ def test_a_larger_margin_accepts_more_and_never_more_leaves(small_folds):
 
 
 def test_stability_by_hand():
-    config = ("gini", None, 1, 5, "1se", "error")
+    config = ("gini", None, 1, 5, "1se", "error", "error", None)
     frame = pd.DataFrame(
         {
             "dataset": ["a"] * 4 + ["b"] * 2,

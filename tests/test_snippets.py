@@ -168,3 +168,25 @@ def test_rule_words_and_caution_for_the_data():
     assert rule_words("2se") == "the 2-standard-error rule"
     assert caution_for(False) == CAUTION and "benchmark data" in CAUTION
     assert caution_for(True) == CAUTION_OWN_DATA and "your own data" in CAUTION_OWN_DATA
+
+
+def test_other_losses_and_class_weights_reach_the_estimator_and_the_fragment():
+    config = {
+        "criterion": "gini",
+        "max_depth": 4,
+        "min_samples_leaf": 1,
+        "inner_folds": 5,
+        "rule": "min",
+        "prune_risk": "cost",
+        "select_by": "auc",
+        "class_weight": "balanced",
+    }
+    rec = {"family": "classification", "config": config}
+    block = estimator_block(rec)
+    assert "select_by='auc'" in block and "class_weight='balanced'" in block
+    namespace: dict = {}
+    exec(block, namespace)  # the block builds the estimator it names
+    model = namespace["model"]
+    assert (model.select_by, model.class_weight) == ("auc", "balanced")
+    levels = tomllib.loads(study_fragment(rec))["factors"]["classification"]
+    assert (levels["select_by"], levels["class_weight"]) == (["auc"], ["balanced"])

@@ -426,11 +426,15 @@ def test_an_unknown_metric_lists_the_metrics_of_the_study_families(folds, small_
     with pytest.raises(stats.StatsError) as mixed:
         stats.comparison(folds, "bogus")
     assert str(mixed.value).endswith(
-        "its datasets have error, accuracy, balanced_accuracy, log_loss, brier, mse, mae, r2"
+        "its datasets have error, accuracy, balanced_accuracy, log_loss, brier, auc, "
+        "average_precision, brier_calibration, brier_refinement, expected_cost, mse, mae, r2"
     )
     # classification only: a regression metric is unknown there, and only the classification
     # metrics are listed; one line on the command line, exit 2
     result = CliRunner().invoke(main, ["compare", "--db", str(small_db), "--metric", "mse"])
     assert result.exit_code == 2 and result.output.count("\n") == 1
     assert "'mse'" in result.output
-    assert result.output.rstrip().endswith("error, accuracy, balanced_accuracy, log_loss, brier")
+    assert result.output.rstrip().endswith(
+        "error, accuracy, balanced_accuracy, log_loss, brier, auc, average_precision, "
+        "brier_calibration, brier_refinement, expected_cost"
+    )

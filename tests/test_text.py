@@ -77,7 +77,7 @@ def test_counts_of_one_are_singular():
     )
     text = plan_text(study, [], Path("one.sqlite"), 1)
     assert "outer CV 1 repeat x 2 folds" in text
-    assert "1 trial in 1 group (trials that differ only in the rule" in text
+    assert "1 trial in 1 group (trials that share the grown trees" in text
     many = parse_study(
         'name = "two"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 2\nfolds = 2\n'
         '[factors]\ninner_folds = [2]\nrule = ["min", "1se"]\n'

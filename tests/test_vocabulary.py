@@ -52,6 +52,8 @@ def test_metric_names_are_the_stored_columns_in_order(small_db):
     assert {m for m in metric_names() if higher_is_better(m)} == {
         "accuracy",
         "balanced_accuracy",
+        "auc",
+        "average_precision",
         "r2",
     }
 
@@ -72,8 +74,11 @@ def test_defaults_are_what_a_study_without_factors_sweeps():
         "inner_folds": [10],
         "rule": ["1se"],
         "prune_risk": ["error"],
+        "select_by": ["error"],
+        "class_weight": ["none"],
     }
     assert study.factors[REGRESSION]["criterion"] == ["squared_error"]
+    assert study.factors[REGRESSION]["select_by"] == ["mse"]
     assert study.factors[REGRESSION]["prune_risk"] == ["squared_error"]
 
 
@@ -84,7 +89,8 @@ def test_prune_risk_names_are_the_pruning_engines():
 
 
 def test_growth_factors_are_those_that_change_the_tree():
-    assert growth_factors() == ["criterion", "max_depth", "min_samples_leaf"]
+    # class weights change the grown tree; the loss that chooses alpha does not
+    assert growth_factors() == ["criterion", "max_depth", "min_samples_leaf", "class_weight"]
 
 
 def test_configuration_from_a_row_with_missing_levels():
@@ -118,13 +124,13 @@ def doubled_error(monkeypatch):
     monkeypatch.setitem(
         vocabulary.METRICS, "doubled_error", Metric("doubled_error", CLASSIFICATION, False, 0.02)
     )
-    scores = evaluate._classification_scores
+    scores = evaluate.fold_metrics
 
-    def with_doubled(model, X, y, classes):
-        out = scores(model, X, y, classes)
+    def with_doubled(*args, **kwargs):
+        out = scores(*args, **kwargs)
         return {**out, "doubled_error": 2 * out["error"]}
 
-    monkeypatch.setattr(evaluate, "_classification_scores", with_doubled)
+    monkeypatch.setattr(evaluate, "fold_metrics", with_doubled)
     return "doubled_error"
 
 
@@ -180,3 +186,19 @@ def test_counted_puts_the_noun_in_the_number_it_needs(n, noun, plural, expected)
     from prunebench.vocabulary import counted
 
     assert counted(n, noun, plural) == expected
+
+
+def test_select_by_levels_are_the_scoring_engines_and_defaults_compare_equal():
+    from prunebench.scoring import SELECT_BY
+
+    assert vocabulary.SELECT_BY == SELECT_BY
+    assert vocabulary.FACTORS["select_by"].levels == SELECT_BY
+    assert not vocabulary.FACTORS["select_by"].changes_tree
+    # labels leave out the default levels (studies written before these factors) and show
+    # the others
+    old = Configuration("gini", None, 1, 10, "1se", "error", "error", "none")
+    assert old.label() == Configuration.of(old.key()[:6]).label() == "gini d=none l=1 k=10 1se err"
+    new = Configuration("gini", 4, 1, 10, "min", "cost", "auc", "balanced")
+    assert new.label() == "gini d=4 l=1 cw=bal k=10 min cost by=auc"
+    assert new.unpruned() == Configuration("gini", 4, 1, None, "unpruned", None, None, "balanced")
+    assert new.unpruned().label() == "gini d=4 l=1 cw=bal unpruned"
