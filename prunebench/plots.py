@@ -9,6 +9,7 @@ Colours come from one qualitative palette of our own choosing (seaborn's
 from __future__ import annotations
 
 import tomllib
+from dataclasses import fields
 from pathlib import Path
 
 import matplotlib.ticker
@@ -350,6 +351,19 @@ def _frontier(leaves: np.ndarray, loss: np.ndarray) -> np.ndarray:
     return np.array(keep, dtype=int)
 
 
+def _same_config(levels: tuple, chosen: tuple) -> bool:
+    """Whether a frame's configuration key is the chosen one; ``select_by`` and
+    ``class_weight`` left unset (None) in the chosen key match any level (a study that
+    does not sweep them stores their defaults)."""
+    optional = {
+        i for i, f in enumerate(fields(Configuration)) if f.name in ("select_by", "class_weight")
+    }
+    return all(
+        a == b or (i in optional and b is None)
+        for i, (a, b) in enumerate(zip(levels, chosen, strict=True))
+    )
+
+
 def size_against_error(
     folds: pd.DataFrame,
     metric: str | None = None,
@@ -428,7 +442,8 @@ def size_against_error(
             lw=0.9,
         )
         if chosen is not None:
-            hit = part[part["config"].map(lambda c, k=chosen: c == k)]
+            # a CV loss or class weight the recommendation leaves unset is the default level
+            hit = part[part["config"].map(lambda c, k=chosen: _same_config(c, k))]
             ax.scatter(
                 hit["n_leaves"],
                 hit["loss"],
