@@ -10,6 +10,7 @@ from functools import lru_cache
 import numpy as np
 
 from ..exceptions import DatasetError
+from ..vocabulary import CLASSIFICATION, family_of
 
 TASKS = ("binary", "multiclass", "regression")
 
@@ -135,8 +136,8 @@ def register(dataset: Dataset, *, replace: bool = False) -> Dataset:
 
 
 def is_classification(task: str) -> bool:
-    """Whether a task is a classification task."""
-    return task != "regression"
+    """Whether a task is a classification task (the vocabulary's ``family_of``)."""
+    return family_of(task) == CLASSIFICATION
 
 
 def list_datasets() -> list[Dataset]:
