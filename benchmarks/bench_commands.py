@@ -98,29 +98,36 @@ def as_release_schema(new: Path, old: Path) -> None:
     conn.close()
 
 
-def _environment(code: Path | None) -> dict | None:
-    return None if code is None else {**os.environ, "PYTHONPATH": str(code)}
+def _environment(code: Path | None) -> dict:
+    """This version's package (the checkout) or 0.1.0's first on the path."""
+    return {**os.environ, "PYTHONPATH": str(ROOT if code is None else code)}
 
 
-def _version(code: Path | None) -> str:
-    """The version a process imports with ``code`` first on its path."""
-    done = subprocess.run(
-        [sys.executable, "-c", "import prunebench; print(prunebench.__version__)"],
+def _python(code: Path | None, *args: str) -> subprocess.CompletedProcess:
+    """Run ``python *args`` with one version's package first on the path.
+
+    The process starts in the system's temporary folder, so that neither
+    checkout's folder (``python -c`` puts the working folder first) decides.
+    """
+    return subprocess.run(
+        [sys.executable, *args],
         capture_output=True,
         text=True,
         env=_environment(code),
-        check=True,
+        cwd=tempfile.gettempdir(),
     )
+
+
+def _version(code: Path | None) -> str:
+    """``prunebench.__version__`` and the file it came from, as one version's process sees them."""
+    done = _python(code, "-c", "import prunebench as p; print(p.__version__, p.__file__)")
     return done.stdout.strip()
 
 
 def run_command(args: list[str], code: Path | None) -> tuple[float, int]:
     """(seconds, peak KiB) of one command in a fresh process."""
-    env = _environment(code)
     t0 = time.perf_counter()
-    done = subprocess.run(
-        [sys.executable, "-c", RUNNER, *args], capture_output=True, text=True, env=env
-    )
+    done = _python(code, "-c", RUNNER, *args)
     seconds = time.perf_counter() - t0
     if done.returncode != 0:
         raise SystemExit(f"{' '.join(args)} failed ({done.returncode}): {done.stderr[-400:]}")

@@ -18,10 +18,12 @@ from click.testing import CliRunner
 
 from prunebench import open_results, results
 from prunebench.cli import main
+from prunebench.exceptions import InvalidParameterError
 from prunebench.execute import Progress, conduct
 from prunebench.results import TABLES, VIEWS, progress_report
 from prunebench.store import ResultStore
 from prunebench.study import parse_study
+from prunebench.vocabulary import metric_names
 
 
 def _digest(path):
@@ -407,6 +409,30 @@ def test_load_folds_columns_and_types(small_db):
         len(folds) == 48 * 6 * 2
         and not folds.duplicated(["trial_id", "repeat", "fold", "arm"]).any()
     )
+
+
+def test_load_folds_in_chunks_equals_one_read(mixed_db, monkeypatch):
+    # Chunks of 7 rows: some hold only the regression set's rows, whose classification
+    # metrics are all NULL, and some only unlimited depths; the frame must still have
+    # the dtypes and values of one read.
+    with ResultStore(mixed_db, readonly=True) as store:
+        whole = results.load_folds(store)
+        monkeypatch.setattr(results, "_READ_CHUNK", 7)
+        chunked = results.load_folds(store)
+    assert whole["error"].isna().any() and whole["mse"].isna().any()
+    pd.testing.assert_frame_equal(chunked, whole)
+    assert whole["error"].dtype == "float64" and str(whole["max_depth"].dtype) == "Int64"
+
+
+def test_load_folds_reads_only_the_metrics_asked_for(mixed_db):
+    with ResultStore(mixed_db, readonly=True) as store:
+        whole = results.load_folds(store)
+        some = results.load_folds(store, metrics=["mse", "error", "mse"])
+        with pytest.raises(InvalidParameterError, match="metrics"):
+            results.load_folds(store, metrics=["bogus"])
+    gone = [m for m in metric_names() if m not in ("error", "mse")]
+    assert "auc" in gone and not set(gone) & set(some.columns)
+    pd.testing.assert_frame_equal(some, whole.drop(columns=gone))
 
 
 def test_conduct_table_pivots_the_arm_means(mixed_db):
