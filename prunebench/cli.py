@@ -167,7 +167,7 @@ def _emit(frame, as_json: bool, as_csv: bool) -> bool:
 
 
 def _fold_rows(database: str, study: str | None):
-    from .results import open_results
+    from .tables import open_results
 
     return open_results(database, study).fold_rows()
 
@@ -424,7 +424,7 @@ def _decision_options(command):
 
 
 def _settings(database: str, study: str | None, metric, margin, alpha) -> dict:
-    from .results import open_results
+    from .tables import open_results
 
     return open_results(database, study).decision(metric, margin, alpha)
 
@@ -510,7 +510,7 @@ def effects(database, study, metric, margin, alpha, as_json, as_csv, interaction
     import json
 
     from .effects import effect_records
-    from .results import open_results
+    from .tables import open_results
     from .text import effects_text, interactions_text
 
     results = open_results(database, study)
@@ -553,8 +553,8 @@ def recommend(database, study, metric, margin, alpha, as_json) -> None:
     """
     import json
 
-    from .results import open_results
     from .snippets import recommendation_records
+    from .tables import open_results
     from .text import recommend_text
 
     recs = open_results(database, study).recommendation(metric, margin, alpha)
@@ -657,7 +657,7 @@ def export(database, out, fmt, overwrite) -> None:
     Each file is written whole or not at all; files already in --out are refused unless
     --overwrite is given.
     """
-    from .results import export_tables
+    from .tables import export_tables
 
     written = export_tables(database, out, fmt, overwrite=overwrite)
     names = ", ".join(p.name for p in written)
@@ -681,7 +681,7 @@ def progress(database, study, watch) -> None:
     import time
 
     from .exceptions import parameter_error
-    from .results import progress_report
+    from .progress import progress_report
     from .text import progress_text
 
     if not watch >= 0:  # also refuses nan

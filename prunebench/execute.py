@@ -25,7 +25,7 @@ from typing import TextIO
 
 from .evaluate import EvaluationSettings
 from .exceptions import ConductError, ConductStopped, WorkerLost
-from .results import duration_text
+from .progress import duration_text
 from .runners import GroupTask, Outcome, make_runner
 from .store import ResultStore
 from .study import Study, TrialGroup

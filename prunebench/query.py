@@ -3,7 +3,7 @@
 :func:`fetch` refuses every statement that would write (a pattern check before it
 runs, an SQLite authorizer while it runs, and a read-only connection from
 :func:`prunebench.store.connect_readonly` beneath both) and returns plain column
-names and rows; :func:`prunebench.results.run_query` builds the typed DataFrame
+names and rows; :func:`prunebench.tables.run_query` builds the typed DataFrame
 from them.  :func:`results_path` says which database a path means.  The
 :func:`json_text`, :func:`csv_text` and :func:`table_text` printers are the
 ``--json``, ``--csv`` and plain outputs of ``prunebench sql``.  Nothing here

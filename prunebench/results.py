@@ -1,27 +1,25 @@
 """The one reader of a results database: DataFrames out, one policy for which study.
 
-Every read of a results database goes through this module: :func:`resolve_study`
-says which study a question is about (the database's only study, or the one
-named; several without a name is an error listing them, for every command alike),
+Every read of a results database starts here: :func:`resolve_study` says which
+study a question is about (the database's only study, or the one named; several
+without a name is an error listing them, for every command alike),
 :func:`load_folds` reads the finished folds with one SQL query straight into
 pandas, and the small readers below serve the conduct summary, the figures, the
-report and the search.  :func:`open_results` is the notebook entry point;
-:func:`run_query` backs ``prunebench sql`` and refuses anything that writes;
-:func:`export_tables` backs ``prunebench export``; :func:`progress_report` backs
-``prunebench progress``.  Statistics, figures and the report receive the frames
-and never open the database themselves.
+report and the search.  The notebook entry point :func:`prunebench.tables.open_results`,
+``prunebench sql`` and ``prunebench export`` (:mod:`prunebench.tables`) and
+``prunebench progress`` (:mod:`prunebench.progress`) build on them.  Statistics,
+figures and the report receive the frames and never open the database themselves.
 """
 
 from __future__ import annotations
 
-import datetime as _dt
 from collections.abc import Iterable
 from pathlib import Path
 
 import pandas as pd
 
 from .exceptions import QueryError, parameter_error
-from .query import fetch, results_path
+from .query import results_path
 from .store import ResultStore
 from .vocabulary import (
     CLASSIFICATION,
@@ -38,27 +36,19 @@ from .vocabulary import FACTORS as _FACTOR_SPECS
 
 __all__ = [
     "QueryError",
-    "Results",
     "arm_means",
     "conduct_table",
     "decision_settings",
-    "duration_text",
-    "export_tables",
     "load_folds",
-    "open_results",
-    "progress_report",
     "pruned_losses",
     "resolve_study",
     "results_path",
-    "run_query",
     "study_levels",
     "study_overview",
     "trial_counts",
     "trial_curves",
 ]
 
-TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
-VIEWS = ("arm_summary", "fold_differences")
 
 
 # ---- which file, which study -------------------------------------------------------------
@@ -467,359 +457,4 @@ def study_overview(store: ResultStore, study: str | None = None) -> dict:
         "datasets": datasets,
         "environments": environments,
         "failed": failed,
-    }
-
-
-# ---- pandas for notebooks ----------------------------------------------------------------
-
-
-class Results:
-    """A results database seen as pandas DataFrames (opened read-only).
-
-    Parameters
-    ----------
-    path : str or Path
-    study : str, optional
-        Study name for the statistics, when the database holds several.
-
-    Examples
-    --------
-    >>> results = open_results("results/quickstart.sqlite")  # doctest: +SKIP
-    >>> results.comparison().query("verdict == 'pruned better'")  # doctest: +SKIP
-    """
-
-    def __init__(self, path: str | Path, study: str | None = None) -> None:
-        self.path = Path(path)
-        self.study = study
-        ResultStore(self.path, readonly=True).close()  # fail early on a bad file
-
-    def _store(self) -> ResultStore:
-        return ResultStore(self.path, readonly=True)
-
-    def table(self, name: str) -> pd.DataFrame:
-        """Any table or view of the database, as stored.
-
-        Parameters
-        ----------
-        name : str
-            One of the tables (studies, datasets, trials, folds, curves, environments) or
-            views (arm_summary, fold_differences).
-        """
-        if name not in TABLES + VIEWS:
-            raise QueryError(f"no table or view {name!r}; use one of {', '.join(TABLES + VIEWS)}")
-        with self._store() as store:
-            frame = pd.read_sql_query(f'SELECT * FROM "{name}"', store.db.conn)
-            declared = {r["name"]: r["type"] for r in store.query(f'PRAGMA table_info("{name}")')}
-        # integer columns with NULLs (max_depth = unlimited) stay integers, not floats
-        for column, kind in declared.items():
-            if kind.upper() == "INTEGER" and frame[column].dtype.kind == "f":
-                frame[column] = frame[column].astype("Int64")
-        return frame
-
-    def studies(self) -> pd.DataFrame:
-        """The ``studies`` table."""
-        return self.table("studies")
-
-    def datasets(self) -> pd.DataFrame:
-        """The ``datasets`` table."""
-        return self.table("datasets")
-
-    def trials(self) -> pd.DataFrame:
-        """The ``trials`` table."""
-        return self.table("trials")
-
-    def folds(self) -> pd.DataFrame:
-        """The ``folds`` table."""
-        return self.table("folds")
-
-    def curves(self) -> pd.DataFrame:
-        """The ``curves`` table (inner-CV curves; join trials on ``group_id``)."""
-        return self.table("curves")
-
-    def fold_rows(self) -> pd.DataFrame:
-        """Finished trials' folds joined with their data set and factors (for statistics)."""
-        with self._store() as store:
-            return load_folds(store, self.study)
-
-    def comparison(self, metric: str | None = None) -> pd.DataFrame:
-        """Pruned against unpruned per data set and configuration (see ``stats.comparison``)."""
-        from .stats import comparison
-
-        return comparison(self.fold_rows(), metric)
-
-    def ranking(self, metric: str | None = None) -> list[dict]:
-        """Configurations ranked across data sets (see ``ranks.ranking``)."""
-        from .ranks import ranking
-
-        return ranking(self.fold_rows(), metric)
-
-    def decision(
-        self, metric: str | None = None, margin: float | None = None, alpha: float | None = None
-    ) -> dict:
-        """The study's ``[decision]`` settings with any given value in place of the stored one.
-
-        See :func:`decision_settings`.
-        """
-        with self._store() as store:
-            return decision_settings(store, self.study, metric, margin, alpha)
-
-    def effects(
-        self,
-        metric: str | None = None,
-        margin: float | None = None,
-        alpha: float | None = None,
-        interactions: bool = False,
-    ) -> pd.DataFrame:
-        """Each factor level's effect on the primary metric and on tree size, across data sets.
-
-        The metric, margin and alpha default to the study's ``[decision]`` settings and
-        the reference levels are the stored study file's first levels.
-
-        Parameters
-        ----------
-        metric : str, optional
-        margin : float, optional
-        alpha : float, optional
-        interactions : bool, default=False
-            Return :func:`prunebench.effects.interaction_effects`' table instead.
-
-        Returns
-        -------
-        DataFrame
-            :data:`prunebench.effects.EFFECT_COLUMNS` (or ``INTERACTION_COLUMNS``), one row
-            per family, factor, non-reference level and metric (the primary one and
-            ``n_leaves``).
-        """
-        from .effects import factor_effects, interaction_effects
-
-        with self._store() as store:
-            settings = decision_settings(store, self.study, metric, margin, alpha)
-            levels = study_levels(store, self.study)
-            folds = load_folds(store, self.study)
-        for family, own in levels.items():
-            if not own:  # a search names no levels: the reference is the smallest level seen
-                mine = folds[folds["task"].map(family_of) == family]
-                levels[family] = {
-                    f: sorted(mine[f].dropna().unique().tolist()) + ([None] * mine[f].isna().any())
-                    for f in factor_names()
-                }
-        compute = interaction_effects if interactions else factor_effects
-        return compute(folds, levels, settings["metric"], settings["margin"], settings["alpha"])
-
-    def recommendation(
-        self, metric: str | None = None, margin: float | None = None, alpha: float | None = None
-    ) -> list[dict]:
-        """The recommended configuration per task family (:func:`prunebench.recommend.recommend`).
-
-        The metric, margin and alpha default to the study's ``[decision]`` settings; the
-        trial counts (done, failed, pending) of every family are included, and a family
-        with trials but no finished fold is reported as undecided.
-
-        Returns
-        -------
-        list of dict
-            One per family of the study, as :func:`prunebench.recommend.recommend`
-            (``decided`` False with a ``reason`` where nothing could be chosen).
-        """
-        from .recommend import recommend, undecided
-
-        with self._store() as store:
-            settings = decision_settings(store, self.study, metric, margin, alpha)
-            counts = trial_counts(store, self.study)
-            try:
-                # the primary metrics alone: the frame is copied as it is reshaped
-                folds = load_folds(store, self.study, settings["metric"].values())
-            except QueryError:
-                folds = None
-        recs = []
-        if folds is not None:
-            fits = folds["task"].map(family_of).isin(settings["metric"])
-            fitting = folds if fits.all() else folds[fits]
-            if not fitting.empty:
-                recs = recommend(
-                    fitting, settings["metric"], settings["margin"], settings["alpha"], counts
-                )
-        decided = {r["family"] for r in recs}
-        for family in settings["metric"]:
-            if family not in decided:
-                recs.append(
-                    undecided(
-                        family,
-                        settings["metric"][family],
-                        settings["margin"][family],
-                        settings["alpha"],
-                        counts.get(family),
-                        "no finished trial",
-                    )
-                )
-        order = {f: i for i, f in enumerate(FAMILIES)}
-        return sorted(recs, key=lambda r: order[r["family"]])
-
-
-def open_results(path: str | Path, study: str | None = None) -> Results:
-    """Open a results database for reading into pandas.
-
-    Parameters
-    ----------
-    path : str or Path
-    study : str, optional
-
-    Returns
-    -------
-    Results
-    """
-    return Results(path, study)
-
-
-def run_query(path: str | Path, sql: str) -> pd.DataFrame:
-    """Run one read-only SQL statement against a results database.
-
-    The file is opened read-only and every statement that would write (INSERT, UPDATE,
-    DELETE, DROP, CREATE, ALTER, ATTACH, a PRAGMA that sets a value, transactions, …) is
-    refused with a message before it runs (see :func:`prunebench.query.fetch`, which
-    does the reading; this adds the typed frame).
-
-    Parameters
-    ----------
-    path : str or Path
-    sql : str
-
-    Returns
-    -------
-    DataFrame
-    """
-    columns, rows = fetch(path, sql)
-    return _typed_frame(rows, columns)
-
-
-def _typed_frame(rows: list[tuple], columns: list[str]) -> pd.DataFrame:
-    """Rows as a frame whose integer columns stay integers when some values are NULL."""
-    frame = pd.DataFrame(rows, columns=columns, dtype=object)
-    for i in range(len(columns)):
-        values = [v for v in frame.iloc[:, i] if v is not None]
-        if not values or any(isinstance(v, bool) for v in values):
-            continue
-        if all(isinstance(v, int) for v in values):
-            frame.isetitem(i, pd.array(list(frame.iloc[:, i]), dtype="Int64"))
-        elif all(isinstance(v, (int, float)) for v in values):
-            frame.isetitem(i, pd.to_numeric(frame.iloc[:, i]).astype(float))
-    return frame
-
-
-def export_tables(
-    path: str | Path, out: str | Path, fmt: str = "csv", *, overwrite: bool = False
-) -> list[Path]:
-    """Write every table and view of a results database as CSV or Parquet files.
-
-    Each file is written under a temporary name and renamed when whole, so a file is
-    either complete or absent.  Existing files are not replaced unless asked.
-
-    Parameters
-    ----------
-    path : str or Path
-        The results database.
-    out : str or Path
-        Folder for the files (created if missing).
-    fmt : {"csv", "parquet"}
-    overwrite : bool, default=False
-        Replace files of the same names already in ``out``; without it they are refused
-        before anything is written.
-
-    Returns
-    -------
-    list of Path
-    """
-    if fmt not in ("csv", "parquet"):
-        raise parameter_error("fmt", "export_tables", "'csv' or 'parquet'", fmt)
-    results = open_results(path)
-    out = Path(out)
-    targets = [out / f"{name}.{fmt}" for name in TABLES + VIEWS]
-    present = [t.name for t in targets if t.exists()]
-    if present and not overwrite:
-        raise QueryError(
-            f"out={out} already holds {', '.join(present)}; give overwrite=True to replace "
-            f"{'it' if len(present) == 1 else 'them'}, or another folder"
-        )
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as err:
-        raise QueryError(f"out={out}: cannot create the folder ({err.strerror})") from None
-    written = []
-    for name, target in zip(TABLES + VIEWS, targets, strict=True):
-        frame = results.table(name)
-        partial = target.with_name(target.name + ".partial")
-        try:
-            if fmt == "csv":
-                frame.to_csv(partial, index=False)
-            else:
-                frame.to_parquet(partial, index=False)
-            partial.replace(target)
-        except ImportError:
-            partial.unlink(missing_ok=True)
-            raise QueryError("Parquet export needs pyarrow: pip install pyarrow") from None
-        except OSError as err:
-            partial.unlink(missing_ok=True)
-            raise QueryError(f"out={out}: cannot write {target.name} ({err.strerror})") from None
-        written.append(target)
-    return written
-
-
-def duration_text(seconds: float) -> str:
-    """A duration as ``1h05m`` or ``4m07s``."""
-    seconds = int(round(seconds))
-    h, rest = divmod(seconds, 3600)
-    m, s = divmod(rest, 60)
-    return f"{h}h{m:02d}m" if h else f"{m}m{s:02d}s"
-
-
-def progress_report(path: str | Path, study: str | None = None, last_errors: int = 3) -> dict:
-    """Counts, rate and ETA of a study, readable while a ``conduct`` writes to it.
-
-    Returns
-    -------
-    dict
-        ``study``, ``done``, ``failed``, ``pending``, ``total``, ``rate_per_minute``
-        (trials finished per minute over the run so far), ``eta_seconds``,
-        ``eta`` (as text), ``last_finished`` and ``errors`` (the last lines of the latest
-        tracebacks).
-    """
-    with ResultStore(path, readonly=True) as store:
-        chosen = resolve_study(store, study)
-        sid = chosen["study_id"]
-        counts = {
-            r["status"]: r["n"]
-            for r in store.query(
-                "SELECT status, COUNT(*) AS n FROM trials WHERE study_id = ? GROUP BY status", [sid]
-            )
-        }
-        times = store.query(
-            "SELECT MIN(started) AS first, MAX(finished) AS last FROM trials WHERE study_id = ? "
-            "AND status != 'pending'",
-            [sid],
-        )[0]
-        errors = store.query(
-            "SELECT error FROM trials WHERE study_id = ? AND status = 'failed' "
-            "ORDER BY finished DESC LIMIT ?",
-            [sid, last_errors],
-        )
-    done, failed, pending = (counts.get(k, 0) for k in ("done", "failed", "pending"))
-    rate = eta = None
-    if times["first"] and times["last"] and done + failed:
-        span = (
-            _dt.datetime.fromisoformat(times["last"]) - _dt.datetime.fromisoformat(times["first"])
-        ).total_seconds()
-        if span > 0:
-            rate = (done + failed) / span * 60
-            eta = pending / (rate / 60) if pending else 0.0
-    return {
-        "study": chosen["name"],
-        "done": done,
-        "failed": failed,
-        "pending": pending,
-        "total": done + failed + pending,
-        "rate_per_minute": rate,
-        "eta_seconds": eta,
-        "eta": "-" if eta is None else duration_text(eta),
-        "last_finished": times["last"],
-        "errors": [e["error"].strip().splitlines()[-1] for e in errors if e["error"]],
     }

@@ -251,7 +251,7 @@ def conduct_text(summary, table) -> str:
 
 
 def progress_text(report: dict) -> str:
-    """One progress line of :func:`prunebench.results.progress_report`, and recent failures."""
+    """One progress line of :func:`prunebench.progress.progress_report`, and recent failures."""
     rate = "-" if report["rate_per_minute"] is None else f"{report['rate_per_minute']:.1f}"
     lines = [
         f"study {report['study']!r}: {report['done']} done, {report['failed']} failed, "

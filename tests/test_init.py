@@ -23,11 +23,11 @@ def test_the_command_line_imports_none_of_the_heavy_libraries():
 
 
 def test_every_public_name_resolves_and_comes_from_its_module():
-    from prunebench import estimators, pruning, results, selection
+    from prunebench import estimators, pruning, selection, tables
 
     assert prunebench.PrunedTreeClassifier is estimators.PrunedTreeClassifier
     assert prunebench.PRUNE_RISKS is pruning.PRUNE_RISKS
-    assert prunebench.open_results is results.open_results
+    assert prunebench.open_results is tables.open_results
     assert prunebench.StandardErrorRule is selection.StandardErrorRule
     for name in prunebench.__all__:
         assert getattr(prunebench, name) is not None

@@ -376,7 +376,7 @@ def test_read_only_database(sweep, tmp_path):
 
 def _read_everything(db, study_name):
     """Every read path: the store, the pandas API, SQL, and the compare and sql commands."""
-    from prunebench.results import open_results, run_query
+    from prunebench.tables import open_results, run_query
 
     with ResultStore(db, readonly=True) as store:
         assert store.integrity() == "ok"

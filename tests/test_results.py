@@ -1,4 +1,4 @@
-"""Tests of reading results: read-only SQL, pandas, exports and progress."""
+"""Tests of the one reader (prunebench.results) and the read commands: SQL, which study, folds."""
 
 from __future__ import annotations
 
@@ -7,10 +7,6 @@ import hashlib
 import io
 import json
 import sqlite3
-import subprocess
-import sys
-import time
-from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -20,7 +16,6 @@ from prunebench import open_results, results
 from prunebench.cli import main
 from prunebench.exceptions import InvalidParameterError
 from prunebench.execute import Progress, conduct
-from prunebench.results import TABLES, VIEWS, progress_report
 from prunebench.store import ResultStore
 from prunebench.study import parse_study
 from prunebench.vocabulary import metric_names
@@ -116,83 +111,6 @@ def test_sql_prints_integers_as_integers_and_null_as_blank(small_db):
     assert "NaN" not in run().output and ".0" not in run().output
 
 
-def test_open_results_round_trips_what_the_store_wrote(small_db):
-    results = open_results(small_db)
-    conn = sqlite3.connect(small_db)
-    for name in TABLES + VIEWS:
-        ours = results.table(name)
-        cursor = conn.execute(f'SELECT * FROM "{name}"')
-        raw = cursor.fetchall()
-        assert list(ours.columns) == [c[0] for c in cursor.description]
-        assert len(ours) == len(raw)
-
-        def native(v):
-            return None if pd.isna(v) else (v.item() if hasattr(v, "item") else v)
-
-        rebuilt = [tuple(native(v) for v in row) for row in ours.itertuples(index=False)]
-        assert sorted(rebuilt, key=repr) == sorted(raw, key=repr), name
-        for a, b in zip(sorted(rebuilt, key=repr), sorted(raw, key=repr), strict=True):
-            assert [type(x) for x in a] == [type(x) for x in b], name
-    assert len(results.folds()) == 48 * 6 * 2
-    assert set(results.comparison()["verdict"]) <= {
-        "pruned better",
-        "unpruned better",
-        "no evidence either way",
-    }
-    assert results.ranking()[0]["family"] == "classification"
-    assert results.recommendation()[0]["config"]["criterion"] in ("gini", "entropy")
-
-
-def test_export_writes_every_table(small_db, tmp_path):
-    result = CliRunner().invoke(main, ["export", "--db", str(small_db), "--out", str(tmp_path)])
-    assert result.exit_code == 0, result.output
-    for name in TABLES + VIEWS:
-        frame = pd.read_csv(tmp_path / f"{name}.csv")
-        assert len(frame) == len(open_results(small_db).table(name))
-    pytest.importorskip("pyarrow")
-    CliRunner().invoke(
-        main,
-        ["export", "--db", str(small_db), "--out", str(tmp_path / "pq"), "--format", "parquet"],
-    )
-    folds = pd.read_parquet(tmp_path / "pq" / "folds.parquet")
-    assert len(folds) == 48 * 6 * 2
-
-
-def test_export_refuses_to_replace_files_unless_overwrite(small_db, tmp_path):
-    out = tmp_path / "out"
-    out.mkdir()
-    (out / "trials.csv").write_text("mine\n")
-    args = ["export", "--db", str(small_db), "--out", str(out)]
-    refused = CliRunner().invoke(main, args)
-    assert refused.exit_code == 2
-    assert refused.output.startswith("error: ") and refused.output.count("\n") == 1
-    assert "trials.csv" in refused.output and "--overwrite" in refused.output
-    # nothing written: the file kept, no other table exported
-    assert sorted(p.name for p in out.iterdir()) == ["trials.csv"]
-    assert (out / "trials.csv").read_text() == "mine\n"
-    replaced = CliRunner().invoke(main, [*args, "--overwrite"])
-    assert replaced.exit_code == 0, replaced.output
-    assert len(pd.read_csv(out / "trials.csv")) == len(open_results(small_db).trials())
-
-
-def test_export_writes_each_file_whole_or_not_at_all(small_db, tmp_path, monkeypatch):
-    real = pd.DataFrame.to_csv
-
-    def fails_on_folds(frame, target, *args, **kwargs):
-        if "test_fingerprint" in frame.columns:  # the folds table
-            Path(target).write_text("half a fi")
-            raise OSError(28, "No space left on device")
-        return real(frame, target, *args, **kwargs)
-
-    monkeypatch.setattr(pd.DataFrame, "to_csv", fails_on_folds)
-    result = CliRunner().invoke(main, ["export", "--db", str(small_db), "--out", str(tmp_path)])
-    assert result.exit_code == 2
-    assert result.output.count("\n") == 1 and "folds.csv" in result.output
-    assert "No space left" in result.output
-    names = {p.name for p in tmp_path.iterdir()}
-    assert "folds.csv" not in names and not any(n.endswith(".partial") for n in names)
-
-
 TINY = """\
 name = "tiny"
 seed = 4
@@ -281,52 +199,6 @@ def test_results_path_of_a_study_file_is_where_conduct_writes(tmp_path):
         sqlite3.connect(expected).close()  # an empty SQLite file is enough to be found
         assert results.results_path(study) == expected
         assert results.results_path(expected) == expected
-
-
-STUDY = """\
-name = "watched"
-seed = 2
-datasets = ["digits"]
-[outer]
-repeats = 2
-folds = 3
-[factors]
-criterion = ["gini", "entropy"]
-max_depth = ["none", 3, 5, 7, 9, 11]
-inner_folds = [3]
-rule = ["min", "1se"]
-"""
-
-
-def test_progress_reads_while_conduct_writes(tmp_path):
-    study = tmp_path / "watched.toml"
-    study.write_text(STUDY)
-    db = tmp_path / "watched.sqlite"
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "prunebench.cli", "conduct", str(study)],
-        stdout=subprocess.DEVNULL,
-        stderr=subprocess.DEVNULL,
-    )
-    seen = []
-    try:
-        deadline = time.monotonic() + 120
-        while time.monotonic() < deadline and proc.poll() is None:
-            time.sleep(0.3)
-            if not db.exists():
-                continue
-            result = CliRunner().invoke(main, ["progress", "--db", str(db)])
-            if result.exit_code == 0:
-                seen.append(progress_report(db))
-    finally:
-        proc.wait(timeout=300)
-    assert proc.returncode == 0
-    during = [r for r in seen if r["pending"] > 0]
-    assert during, "progress never saw the sweep running"
-    assert all(r["total"] == 24 for r in seen)
-    final = progress_report(db)
-    assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
-    text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
-    assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text
 
 
 def test_arm_means_match_a_hand_aggregation(mixed_db):
@@ -497,23 +369,6 @@ def test_decision_settings_come_from_the_stored_study_and_flags_override(small_d
     assert flag[0]["alpha"] == 0.2
     bad = CliRunner().invoke(main, ["recommend", "--db", str(path), "--alpha", "2"])
     assert bad.exit_code == 2 and "alpha" in bad.output and len(bad.output.splitlines()) == 1
-
-
-def test_results_effects_use_the_study_files_reference_levels(small_db):
-    from prunebench.effects import factor_effects
-
-    opened = open_results(small_db)
-    table = opened.effects()
-    # tests/conftest.py's SMALL_STUDY lists gini, "none", 3 folds and "min" first
-    expected = factor_effects(
-        opened.fold_rows(),
-        {"criterion": ["gini", "entropy"], "max_depth": [None, 3], "inner_folds": [3, 4],
-         "rule": ["min", "1se"]},
-    )
-    pd.testing.assert_frame_equal(table, expected)
-    assert set(table.loc[table["factor"] == "rule", "reference"]) == {"min"}
-    inter = opened.effects(interactions=True)
-    assert {"by", "by_level", "flagged"} <= set(inter.columns)
 
 
 def test_load_folds_has_the_tree_shape(small_db):

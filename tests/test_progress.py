@@ -1,0 +1,57 @@
+"""Tests of a study's progress read while conduct writes (prunebench.progress)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import time
+
+from click.testing import CliRunner
+
+from prunebench.cli import main
+from prunebench.progress import progress_report
+
+STUDY = """\
+name = "watched"
+seed = 2
+datasets = ["digits"]
+[outer]
+repeats = 2
+folds = 3
+[factors]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 3, 5, 7, 9, 11]
+inner_folds = [3]
+rule = ["min", "1se"]
+"""
+
+
+def test_progress_reads_while_conduct_writes(tmp_path):
+    study = tmp_path / "watched.toml"
+    study.write_text(STUDY)
+    db = tmp_path / "watched.sqlite"
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "prunebench.cli", "conduct", str(study)],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    seen = []
+    try:
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline and proc.poll() is None:
+            time.sleep(0.3)
+            if not db.exists():
+                continue
+            result = CliRunner().invoke(main, ["progress", "--db", str(db)])
+            if result.exit_code == 0:
+                seen.append(progress_report(db))
+    finally:
+        proc.wait(timeout=300)
+    assert proc.returncode == 0
+    during = [r for r in seen if r["pending"] > 0]
+    assert during, "progress never saw the sweep running"
+    assert all(r["total"] == 24 for r in seen)
+    final = progress_report(db)
+    assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
+    text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
+    assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text
