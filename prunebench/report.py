@@ -23,9 +23,9 @@ import pandas as pd
 
 from ._version import __version__
 from .exceptions import InvalidParameterError, parameter_error
+from .factor_plots import contrast_name
 from .plots import (
     FIGURES,
-    contrast_name,
     decision_inputs,
     family_figures,
     own_data,
