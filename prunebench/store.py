@@ -17,6 +17,7 @@ a finished database is one self-contained file that readers open read-only
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
 import hashlib
 import json
@@ -243,6 +244,19 @@ class ResultStore:
             self.db.conn.execute("PRAGMA journal_mode=WAL")
             self._in_wal = True
 
+    @contextlib.contextmanager
+    def _transaction(self):
+        """One write transaction, begun at once: committed whole or rolled back whole.
+
+        sqlite-utils' inserts commit on their own unless a transaction is already
+        open, so each write opens its own first (``BEGIN IMMEDIATE`` also takes the
+        write lock before anything is read for it).
+        """
+        self._wal()
+        with self.db.conn:
+            self.db.conn.execute("BEGIN IMMEDIATE")
+            yield
+
     def close(self) -> None:
         """Close the database and release the conducting lock.
 
@@ -299,8 +313,7 @@ class ResultStore:
                     "name or a new database"
                 )
         try:
-            self._wal()
-            with self.db.conn:
+            with self._transaction():
                 if existing:
                     self.db.conn.execute(
                         "UPDATE studies SET description = ?, study_text = ?, study_hash = ?, "
@@ -355,8 +368,7 @@ class ResultStore:
     def add_trials(self, study, trials) -> None:
         """Record more trials of a registered study as ``pending`` (existing ones are kept)."""
         try:
-            self._wal()
-            with self.db.conn:
+            with self._transaction():
                 self._insert_trials(study, trials)
         except sqlite3.Error as err:
             raise _explain(self.path, err) from None
@@ -452,8 +464,7 @@ class ResultStore:
         curve_ids = list(dict.fromkeys(t.group_id for t in trials))
         curve_marks = ",".join("?" * len(curve_ids))
         try:
-            self._wal()
-            with self.db.conn:
+            with self._transaction():
                 growth = self.db.conn.execute(
                     f"SELECT DISTINCT growth_id FROM trials WHERE trial_id IN ({marks})", ids
                 ).fetchall()
@@ -489,8 +500,7 @@ class ResultStore:
         ids = [t.trial_id for t in trials]
         marks = ",".join("?" * len(ids))
         try:
-            self._wal()
-            with self.db.conn:
+            with self._transaction():
                 self.db.conn.execute(
                     f"UPDATE trials SET status = 'failed', error = ?, started = ?, finished = ?, "
                     f"seconds = ? WHERE trial_id IN ({marks})",

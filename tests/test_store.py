@@ -141,6 +141,30 @@ def test_write_hook_runs_inside_the_open_transaction(tmp_path):
         assert store.write_hook is None
 
 
+def test_a_study_is_registered_in_one_transaction(tmp_path, monkeypatch):
+    # Found by a progress read that saw the study with none of its trials: sqlite-utils'
+    # inserts commit on their own unless a transaction is already open.  While the last
+    # step of registering runs, another connection must see nothing of the study yet.
+    study = parse_study(STUDY)
+    path = tmp_path / "t.sqlite"
+    seen = []
+    record = ResultStore._record_environment
+
+    def look_then_record(self, study_id, now):
+        other = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        seen.append(
+            [other.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in ("studies", "trials")]
+        )
+        other.close()
+        record(self, study_id, now)
+
+    monkeypatch.setattr(ResultStore, "_record_environment", look_then_record)
+    with ResultStore(path) as store:
+        store.register_study(study)
+        assert store.db.conn.execute("SELECT COUNT(*) FROM trials").fetchone()[0] == 4
+    assert seen == [[0, 0]]
+
+
 def test_a_lock_whose_holder_died_is_taken_over(tmp_path):
     # the holder forks a child that keeps the lock file open (as an orphaned worker did),
     # then dies: the lock names a dead process and is stale
