@@ -10,6 +10,7 @@ __all__ = [
     "ConductError",
     "ConductStopped",
     "DatasetError",
+    "EffectsError",
     "InvalidParameterError",
     "PrunebenchError",
     "QueryError",
@@ -59,6 +60,12 @@ class StoreError(PrunebenchError):
 
 class StatsError(PrunebenchError):
     """The stored results cannot answer the question asked."""
+
+    exit_code = 2
+
+
+class EffectsError(PrunebenchError):
+    """The folds cannot answer the question asked."""
 
     exit_code = 2
 

@@ -33,17 +33,9 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from .effects import (
-    FACTORS,
-    EffectsError,
-    _norm,
-    check_decision,
-    fill_zero_variances,
-    for_family,
-    losses,
-    random_effects_many,
-)
-from .exceptions import parameter_error
+from .effects import FACTORS, _norm, check_decision, for_family, losses
+from .exceptions import EffectsError, parameter_error
+from .metaanalysis import fill_zero_variances, random_effects_many
 from .vocabulary import DEFAULT_METRIC, default_margin, family_of, growth_factors, metric_names
 
 __all__ = [

@@ -12,6 +12,8 @@ import subprocess
 import time
 from pathlib import Path
 
+import numpy as np
+
 
 def stored_rows(path) -> dict:
     """Every stored result without timings, sorted: what two runs of a study must share."""
@@ -97,3 +99,19 @@ def still_running(pids, within: float) -> set[int]:
         time.sleep(0.1)
         left = {p for p in left if alive(p)}
     return left
+
+
+def statsmodels_fit(y, v):
+    """statsmodels' DerSimonian-Laird fit: (row of the Hartung-Knapp interval, tau^2, I^2).
+
+    statsmodels leaves tau^2 (and I^2) negative when Q < k - 1; truncated at 0, as in
+    DESIGN.md, the random-effects fit is the fixed-effect one, so the row is then the
+    "fixed effect wls" row (fixed-effect weights, Hartung-Knapp scale).
+    """
+    from statsmodels.stats import meta_analysis as sm_meta
+
+    fit = sm_meta.combine_effects(np.asarray(y), np.asarray(v), method_re="dl", use_t=True)
+    frame = fit.summary_frame()
+    if fit.tau2 > 0:
+        return frame.loc["random effect wls"], frame.loc["random effect"], fit, 3
+    return frame.loc["fixed effect wls"], frame.loc["fixed effect"], fit, 2
