@@ -166,10 +166,11 @@ def _emit(frame, as_json: bool, as_csv: bool) -> bool:
     return False
 
 
-def _fold_rows(database: str, study: str | None):
+def _fold_rows(database: str, study: str | None, metric: dict):
+    """The study's folds with the metric columns of ``metric`` (family -> metric) alone."""
     from .tables import open_results
 
-    return open_results(database, study).fold_rows()
+    return open_results(database, study).fold_rows(metric.values())
 
 
 #: the commands in workflow order, as ``--help`` lists them (extend it when adding a command;
@@ -450,7 +451,8 @@ def compare(database, study, metric, alpha, as_json, as_csv) -> None:
 
     settings = _settings(database, study, metric, None, alpha)
     check_decision("compare", None, settings["alpha"])
-    table = comparison(_fold_rows(database, study), settings["metric"], settings["alpha"])
+    folds = _fold_rows(database, study, settings["metric"])
+    table = comparison(folds, settings["metric"], settings["alpha"])
     if not _emit(table, as_json, as_csv):
         click.echo(compare_text(table, settings["alpha"]))
 
@@ -477,7 +479,10 @@ def rank(database, study, metric, margin, alpha, as_json, as_csv) -> None:
     settings = _settings(database, study, metric, margin, alpha)
     check_decision("rank", settings["margin"], settings["alpha"])
     results = ranking(
-        _fold_rows(database, study), settings["metric"], settings["alpha"], settings["margin"]
+        _fold_rows(database, study, settings["metric"]),
+        settings["metric"],
+        settings["alpha"],
+        settings["margin"],
     )
     if as_json or as_csv:
         _emit(ranking_frame(results), as_json, as_csv)

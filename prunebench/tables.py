@@ -11,6 +11,7 @@ for which study.
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from pathlib import Path
 
 import pandas as pd
@@ -97,10 +98,13 @@ class Results:
         """The ``curves`` table (inner-CV curves; join trials on ``group_id``)."""
         return self.table("curves")
 
-    def fold_rows(self) -> pd.DataFrame:
-        """Finished trials' folds joined with their data set and factors (for statistics)."""
+    def fold_rows(self, metrics: Iterable[str] | None = None) -> pd.DataFrame:
+        """Finished trials' folds joined with their data set and factors (for statistics).
+
+        ``metrics`` limits the metric columns read (see :func:`prunebench.results.load_folds`).
+        """
         with self._store() as store:
-            return load_folds(store, self.study)
+            return load_folds(store, self.study, metrics)
 
     def comparison(self, metric: str | None = None) -> pd.DataFrame:
         """Pruned against unpruned per data set and configuration (see ``stats.comparison``)."""

@@ -152,9 +152,8 @@ def test_a_study_is_registered_in_one_transaction(tmp_path, monkeypatch):
 
     def look_then_record(self, study_id, now):
         other = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
-        seen.append(
-            [other.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in ("studies", "trials")]
-        )
+        counts = [other.execute(f"SELECT COUNT(*) FROM {t}") for t in ("studies", "trials")]
+        seen.append([c.fetchone()[0] for c in counts])
         other.close()
         record(self, study_id, now)
 
