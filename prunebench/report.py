@@ -10,37 +10,25 @@ file opens offline and can be mailed or archived as it is.
 
 from __future__ import annotations
 
-import base64
 import contextlib
 import html
-import io
-import math
-import re
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from ._version import __version__
 from .exceptions import InvalidParameterError, parameter_error
-from .factor_plots import contrast_name
 from .plots import (
-    FIGURES,
     decision_inputs,
     family_figures,
     own_data,
     study_levels,
 )
 from .ranks import ranking
+from .report_decision import _decision_box, _factor_section, _undecided_box
+from .report_html import _SCRIPT, _STYLE, _figure, _filterable, _missing, _p, _table, format_number
 from .results import decision_settings, load_folds, study_overview
-from .snippets import (
-    CAUTION,
-    caution_for,
-    decision_sentence,
-    estimator_block,
-    long_label,
-    study_fragment,
-)
+from .snippets import CAUTION, caution_for, long_label
 from .stats import comparison
 from .store import ResultStore, utc_now
 from .vocabulary import Configuration
@@ -56,182 +44,6 @@ __all__ = [
     "study_levels",
     "write_report",
 ]
-
-_STYLE = """
-body { font-family: Georgia, 'DejaVu Serif', serif; margin: 0; color: #222; background: #fbfaf7; }
-header { background: #2e4a3f; color: #f4f1e8; padding: 16px 32px; }
-header h1 { margin: 0 0 4px 0; font-size: 26px; }
-main { padding: 8px 32px 40px 32px; max-width: 1320px; }
-nav.contents { font-size: 14px; margin: 10px 0; }
-nav.contents a { margin-right: 14px; color: #2e4a3f; }
-h2 { border-bottom: 2px solid #c8b98a; padding-bottom: 3px; margin-top: 30px; color: #2e4a3f; }
-table { border-collapse: collapse; font-family: 'DejaVu Sans', Arial, sans-serif; font-size: 13px; }
-th, td { border-bottom: 1px solid #ddd6c3; padding: 3px 8px; text-align: right; }
-td { vertical-align: top; white-space: nowrap; } td.wrap { white-space: normal; }
-th { background: #efe9da; position: sticky; top: 0; }
-table.sortable th { cursor: pointer; } table.sortable th:hover { background: #e2d9c2; }
-td.l, th.l { text-align: left; }
-.decision { background: #eef5ef; border: 2px solid #2e4a3f; border-radius: 6px;
-            padding: 8px 20px 12px 20px; margin: 14px 0; }
-.decision h3 { margin: 6px 0; color: #2e4a3f; }
-.sentence { font-size: 19px; font-weight: bold; margin: 6px 0 8px 0; }
-.status { background: #fde8e8; border-left: 6px solid #9b2c2c; padding: 6px 12px;
-          font-weight: bold; }
-.cols { display: flex; gap: 20px; flex-wrap: wrap; } .cols > div { flex: 1 1 420px; }
-.caution { background: #fff3d6; border-left: 6px solid #b7791f; padding: 10px 16px; }
-.good { color: #1d6b3a; font-weight: bold; } .bad { color: #9b2c2c; font-weight: bold; }
-.muted { color: #666; }
-pre { background: #f1eee6; padding: 10px; overflow-x: auto; font-size: 12px; }
-figure { margin: 18px 0; } figcaption { font-size: 13px; color: #555; }
-img { max-width: 100%; border: 1px solid #ddd6c3; background: white; }
-.scroll { max-height: 640px; max-width: 100%; overflow: auto; border: 1px solid #ddd6c3; }
-input.filter { margin: 6px 0; padding: 3px 6px; width: 320px; font-size: 13px; }
-"""
-
-# a few lines of the page's own script: click a header to sort, type to filter
-_SCRIPT = """
-document.querySelectorAll('table.sortable').forEach(function (t) {
-  t.querySelectorAll('th').forEach(function (th, i) {
-    th.addEventListener('click', function () {
-      var rows = Array.from(t.tBodies[0].rows), up = th.dataset.up !== '1';
-      rows.sort(function (a, b) {
-        var x = a.cells[i].dataset.v || a.cells[i].textContent,
-            y = b.cells[i].dataset.v || b.cells[i].textContent,
-            nx = parseFloat(x), ny = parseFloat(y);
-        var c = (!isNaN(nx) && !isNaN(ny)) ? nx - ny : x.localeCompare(y);
-        return up ? c : -c;
-      });
-      th.dataset.up = up ? '1' : '0';
-      rows.forEach(function (r) { t.tBodies[0].appendChild(r); });
-    });
-  });
-});
-document.querySelectorAll('input.filter').forEach(function (box) {
-  box.addEventListener('input', function () {
-    var t = document.getElementById(box.dataset.table), q = box.value.toLowerCase();
-    Array.from(t.tBodies[0].rows).forEach(function (r) {
-      r.style.display = r.textContent.toLowerCase().indexOf(q) >= 0 ? '' : 'none';
-    });
-  });
-});
-"""
-
-#: metrics shown with three decimals (rates, probabilities, log loss); others with 4 figures
-_DECIMAL_METRICS = {"error", "accuracy", "balanced_accuracy", "brier", "log_loss", "auc", "r2"}
-
-
-def _missing(value) -> bool:
-    if value is None or value is pd.NA or value is pd.NaT:
-        return True
-    try:
-        return bool(isinstance(value, float | np.floating) and math.isnan(value))
-    except TypeError:
-        return False
-
-
-def format_number(value, metric: str | None = None, signed: bool = False) -> str:
-    """A number as the report writes it: per metric, never "-0.000", "—" when missing.
-
-    Parameters
-    ----------
-    value : float, int, bool or None
-    metric : str, optional
-        ``error``, probabilities and log loss get three decimals; MSE and other
-        unbounded losses four significant figures; None: four significant figures.
-    signed : bool, default=False
-        Write a "+" before positive values (differences).
-
-    Returns
-    -------
-    str
-    """
-    if _missing(value):
-        return "—"
-    if isinstance(value, bool | np.bool_):
-        return "yes" if value else "no"
-    if isinstance(value, int | np.integer):
-        return f"{int(value):+d}" if signed else str(int(value))
-    value = float(value)
-    if not math.isfinite(value):
-        return "∞" if value > 0 else "−∞"
-    sign = "+" if signed else ""
-    if metric in _DECIMAL_METRICS:
-        text = f"{value:{sign}.3f}"
-    elif abs(value) >= 1e4:
-        text = f"{value:{sign},.0f}"  # 12,346 rather than 1.235e+04
-    else:
-        text = f"{value:{sign}.4g}"
-    if re.fullmatch(r"[-+]?0(\.0*)?", text):
-        text = text.lstrip("+-")  # no "-0.000"
-    return text.replace("-", "−")
-
-
-def _cell(value) -> str:
-    """Default text of a table cell."""
-    if _missing(value):
-        return "—"
-    if isinstance(value, bool | np.bool_):
-        return "yes" if value else "no"
-    if isinstance(value, float | np.floating):
-        return format_number(value)
-    return str(value)
-
-
-def _table(
-    frame: pd.DataFrame,
-    left: tuple = (),
-    formats: dict | None = None,
-    table_id: str | None = None,
-    sortable: bool = False,
-    wrap: tuple = (),
-) -> str:
-    """An HTML table; ``formats`` maps a column to a function of the value.
-
-    Cells stay on one line except in the ``wrap`` columns (long free text).
-    """
-    formats = formats or {}
-    cls = ' class="sortable"' if sortable else ""
-    tid = f' id="{table_id}"' if table_id else ""
-    head = "".join(
-        f'<th class="{"l" if c in left else ""}">{html.escape(str(c))}</th>' for c in frame.columns
-    )
-    body = []
-    for row in frame.itertuples(index=False):
-        cells = []
-        for c, v in zip(frame.columns, row, strict=True):
-            text = formats[c](v) if c in formats else _cell(v)
-            klass = ("l" if c in left else "") + (" wrap" if c in wrap else "")
-            if c == "verdict" or c == "verdict on the metric":
-                klass += " " + _verdict_class(text)
-            sort = ""
-            if isinstance(v, int | float | np.integer | np.floating) and not _missing(v):
-                sort = f' data-v="{float(v):.12g}"'
-            cells.append(f'<td class="{klass.strip()}"{sort}>{html.escape(text)}</td>')
-        body.append("<tr>" + "".join(cells) + "</tr>")
-    return f"<table{tid}{cls}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
-
-
-def _verdict_class(text: str) -> str:
-    good = ("pruned better", "better", "smaller", "no practical difference")
-    bad = ("unpruned better", "worse", "larger")
-    if text.startswith(good):
-        return "good"
-    if text.startswith(bad):
-        return "bad"
-    return ""
-
-
-def _filterable(table_html: str, table_id: str, what: str) -> str:
-    return (
-        f'<input class="filter" data-table="{table_id}" placeholder="filter {what} '
-        f'(type a data set, level or verdict)"><div class="scroll">{table_html}</div>'
-    )
-
-
-def _png(fig) -> str:
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=100)
-    return base64.b64encode(buffer.getvalue()).decode()
 
 
 # ---- reading and computing ---------------------------------------------------------------
@@ -386,227 +198,6 @@ def _opening(info: dict, counts: dict) -> str:
     )
 
 
-def _percent(value: float, signed: bool = False) -> str:
-    """A share as a percentage with one decimal ("1%" for a round margin), no "-0.0%"."""
-    if _missing(value):
-        return "—"
-    text = f"{100 * value:{'+' if signed else ''}.1f}"
-    if text.lstrip("+-") == "0.0":
-        text = "0.0"
-    text = text[:-2] if text.endswith(".0") and not signed else text
-    return text.replace("-", "−") + "%"
-
-
-def _loss_text(value: float, metric: str) -> str:
-    if metric in ("mse", "mae"):
-        return f"{_percent(value)} of the unpruned {metric}"
-    return f"{format_number(value, metric)} {metric}"
-
-
-def _status(r: dict) -> str:
-    t = r.get("trials") or {}
-    done, failed, pending = (t.get(k, 0) for k in ("done", "failed", "pending"))
-    if not (failed or pending):
-        return ""
-    return (
-        f'<p class="status">This study is not finished for {r["family"]}: {done} trials done, '
-        f"{failed} failed, {pending} pending. The recommendation below uses the finished "
-        "trials only and may change.</p>"
-    )
-
-
-def _undecided_box(family: str, problem: str, counts: dict | None) -> str:
-    """The box of a family the decision rule cannot answer yet, saying why."""
-    return (
-        f'<div class="decision" id="decision-{family}"><h3>{family.capitalize()}</h3>'
-        + _status({"family": family, "trials": counts or {}})
-        + f"<p><b>No recommendation yet:</b> {html.escape(problem)}.</p></div>"
-    )
-
-
-def _decision_box(r: dict) -> str:
-    metric, margin = r["metric"], r["margin"]
-    config = r["config"]
-    acceptable = r["acceptable"]
-    mine = next((a for a in acceptable if a["config"] == config), acceptable[0])
-    held = r["held_out"]
-    n_conf, k = r["n_configurations"], len(r["datasets"])
-    lines = [
-        f"<b>Confidence.</b> {len(acceptable)} of {n_conf} configurations are acceptable on "
-        f"{k} data set{'s' if k != 1 else ''}: the one-sided {100 * (1 - r['alpha']):g}% upper "
-        f"bound of their excess loss over the best configuration lies below the margin "
-        f"{_loss_text(margin, metric)}. "
-        + (
-            "The recommendation is the lowest-loss configuration itself."
-            if r["best"]["config"] == config
-            else f"The recommendation's bound is {_loss_text(mine['upper_bound'], metric)}."
-        ),
-    ]
-    same_best = r["best"]["config"] == config
-    if len(acceptable) > 1:
-        lines.append(
-            f"<b>The data cannot tell these {len(acceptable)} configurations apart</b> from the "
-            f"lowest-loss one ({html.escape(long_label(r['best']['config']))}"
-            f"{', the recommendation itself' if same_best else ''}); the choice among them is "
-            "the smallest tree."
-        )
-    else:
-        lines.append("Only the lowest-loss configuration is within the margin.")
-    if held["n_datasets"]:
-        lines.append(
-            f"<b>Held out.</b> Choosing on all data sets but one and scoring on the one left "
-            f"out, the rule's choice trails the best there by "
-            f"{_loss_text(held['mean_regret'], metric)} on average, and by more than the margin "
-            f"on {100 * held['share_over_margin']:.0f}% of {held['n_datasets']} data sets."
-        )
-    else:
-        lines.append(
-            "<b>Held out.</b> One data set only: the rule cannot be judged by leaving one out."
-        )
-    unpruned = r.get("unpruned_leaves", float("nan"))
-    saved = ""
-    if not _missing(unpruned) and Configuration.of(config).pruned:
-        saved = (
-            f"<b>Leaves.</b> {r['mean_leaves']:.1f} on average against {unpruned:.1f} for the "
-            f"unpruned tree grown the same way: {unpruned - r['mean_leaves']:.1f} leaves saved "
-            f"(×{r['mean_leaves'] / unpruned:.2f})."
-        )
-    else:
-        saved = f"<b>Leaves.</b> {r['mean_leaves']:.1f} on average (an unpruned tree)."
-    lines.append(saved)
-    rec = {"family": r["family"], "config": config}
-    stab = _stability(r.get("stability"))
-    return (
-        f'<div class="decision" id="decision-{r["family"]}">'
-        f"<h3>{r['family'].capitalize()} (metric {metric})</h3>{_status(r)}"
-        f'<p class="sentence">{html.escape(decision_sentence(config))}</p>'
-        f'<p class="muted">{html.escape(long_label(config))}</p>'
-        + "".join(f"<p>{line}</p>" for line in lines)
-        + stab
-        + '<div class="cols"><div><b>As an estimator</b><pre>'
-        + html.escape(estimator_block(rec))
-        + "</pre></div><div><b>As a study-file fragment</b><pre>"
-        + html.escape(study_fragment(rec))
-        + "</pre></div></div></div>"
-    )
-
-
-def _stability(records) -> str:
-    if not records:
-        return '<p class="muted">Stability of the chosen trees: not stored in this database.</p>'
-    frame = pd.DataFrame(records)
-    view = pd.DataFrame(
-        {
-            "data set": frame["dataset"],
-            "root split": frame["root_feature"].replace("", "(single leaf)"),
-            "folds splitting first on it": frame["root_share"].map(lambda v: f"{100 * v:.0f}%"),
-            "feature-set similarity": frame["jaccard"].map(lambda v: format_number(v, "error")),
-            "leaves (10th–90th pct)": [
-                f"{a:.0f}–{b:.0f}"
-                for a, b in zip(frame["leaves_p10"], frame["leaves_p90"], strict=True)
-            ],
-        }
-    )
-    return "<p><b>Stability</b> of the chosen trees across outer folds:</p>" + _table(
-        view, left=("data set", "root split")
-    )
-
-
-_VERDICT_WORDS = {
-    "equivalent": "no practical difference",
-    "better": "better",
-    "worse": "worse",
-    "undecided": "cannot tell",
-}
-
-
-def _factor_rows(effects: pd.DataFrame, family: str) -> pd.DataFrame:
-    part = effects[effects["family"] == family]
-    main = part[part["metric"] != "n_leaves"]
-    size = part[part["metric"] == "n_leaves"]
-    rows = []
-    for _, r in main.iterrows():
-        m = r["metric"]
-        s = size[(size["factor"] == r["factor"]) & (size["level"].astype(str) == str(r["level"]))]
-        s = s.iloc[0] if len(s) else None
-        relative = m in ("mse", "mae")
-
-        def num(v, signed=True, m=m, relative=relative):
-            if _missing(v):
-                return "—"
-            return _percent(v, signed) if relative else format_number(v, m, signed)
-
-        verdict = _VERDICT_WORDS.get(r["verdict"], r["verdict"])
-        if r["verdict"] == "equivalent":
-            verdict += f" (within ±{num(r['margin'], False)})"
-        rows.append(
-            {
-                "verdict on the metric": verdict,
-                "contrast": contrast_name(r),
-                f"effect on {m}": num(r["estimate"]),
-                "95% interval": f"[{num(r['ci_low'])}, {num(r['ci_high'])}]",
-                "prediction interval (new data set)": (
-                    "—" if _missing(r["pi_low"]) else f"[{num(r['pi_low'])}, {num(r['pi_high'])}]"
-                ),
-                "Holm p": _p(r["p_holm"]),
-                "tree size": "—" if s is None else f"×{s['ratio']:.2f}",
-                "size 95% interval": (
-                    "—" if s is None else f"[×{s['ratio_low']:.2f}, ×{s['ratio_high']:.2f}]"
-                ),
-                "size verdict": "—"
-                if s is None
-                else _VERDICT_WORDS.get(s["verdict"], s["verdict"]),
-                "data sets": int(r["n_datasets"]),
-                "note": r["note"] if isinstance(r["note"], str) else "",
-            }
-        )
-    return pd.DataFrame(rows)
-
-
-def _hoist_note(view: pd.DataFrame) -> tuple[pd.DataFrame, str]:
-    """A note every row shares goes above the table, once; no empty note column."""
-    notes = set(view["note"]) if "note" in view else set()
-    if len(notes) == 1:
-        (note,) = notes
-        return view.drop(columns="note"), (
-            f'<p class="muted">Note: {html.escape(note)}.</p>' if note else ""
-        )
-    return view, ""
-
-
-def _p(value) -> str:
-    if _missing(value):
-        return "—"
-    return "<0.001" if value < 0.001 else f"{value:.3f}"
-
-
-def _factor_section(effects: pd.DataFrame, figures: dict) -> str:
-    parts = [
-        "<p>Each row compares one level of a factor with the reference level (the first "
-        "listed in the study file), on the pruned trees, averaged over the other factors; "
-        "per data set paired over outer folds (Nadeau–Bengio variance), then combined across "
-        "data sets by random effects (DerSimonian–Laird, Hartung–Knapp interval). Negative "
-        "effects mean the level is better. The prediction interval is where the effect on a "
-        "new data set is expected to fall. Tree size is the ratio of leaf counts.</p>"
-    ]
-    for family in effects["family"].unique():
-        view, note = _hoist_note(_factor_rows(effects, family))
-        parts.append(f"<h3>{family.capitalize()}</h3>{note}")
-        parts.append(
-            _table(
-                view,
-                left=("verdict on the metric", "contrast", "size verdict", "note"),
-                wrap=("verdict on the metric", "note"),
-                table_id=f"factors-{family}",
-                sortable=True,
-            )
-        )
-        fig = figures.get(family, {}).get("factor_effects")
-        if fig is not None:
-            parts.append(_figure(f"{family}_factor_effects", "factor_effects", fig))
-    return "".join(parts)
-
-
 def _figures(figures: dict) -> str:
     parts = []
     for family, figs in figures.items():
@@ -622,14 +213,6 @@ def _figures(figures: dict) -> str:
                 "unreadable; the factor-effects figure above answers the same question.</p>"
             )
     return "".join(parts)
-
-
-def _figure(anchor: str, name: str, fig) -> str:
-    return (
-        f'<figure id="{anchor}"><img alt="{html.escape(FIGURES[name])}" '
-        f'src="data:image/png;base64,{_png(fig)}"><figcaption>'
-        f"{html.escape(FIGURES[name])}</figcaption></figure>"
-    )
 
 
 def _key(short: dict[str, str]) -> str:
