@@ -31,7 +31,7 @@ from .results import decision_settings, load_folds, study_overview
 from .snippets import CAUTION, caution_for, long_label
 from .stats import comparison
 from .store import ResultStore, utc_now
-from .vocabulary import Configuration
+from .vocabulary import DEFAULT_METRIC, Configuration
 
 __all__ = [
     "CAUTION",
@@ -80,8 +80,11 @@ def report_inputs(
     """
     overview = study_overview(store, study)
     name = overview["info"]["name"]
-    folds = load_folds(store, name)
     settings = decision_settings(store, name, metric, margin, alpha)
+    # the metrics the report shows: the study's primary ones, and the default ones of the
+    # ranking and comparison sections
+    shown = {*settings["metric"].values(), *DEFAULT_METRIC.values()}
+    folds = load_folds(store, name, shown)
     decided = decision_inputs(
         store, folds, name, settings["metric"], settings["margin"], settings["alpha"]
     )
