@@ -516,7 +516,7 @@ def effects(database, study, metric, margin, alpha, as_json, as_csv, interaction
 
     from .effects import effect_records
     from .tables import open_results
-    from .text import effects_text, interactions_text
+    from .text_decision import effects_text, interactions_text
 
     results = open_results(database, study)
     settings = results.decision(metric, margin, alpha)
@@ -560,7 +560,7 @@ def recommend(database, study, metric, margin, alpha, as_json) -> None:
 
     from .snippets import recommendation_records
     from .tables import open_results
-    from .text import recommend_text
+    from .text_decision import recommend_text
 
     recs = open_results(database, study).recommendation(metric, margin, alpha)
     if as_json:
