@@ -133,23 +133,6 @@ def test_datasets_lists_every_kind_as_json():
 
 
 @pytest.mark.parametrize(
-    "message, shown",
-    [
-        (
-            "r.sqlite holds several studies (a, b); pick one with study=...",
-            "pick one with --study ...",
-        ),
-        ("The 'fmt' parameter must be csv; use fmt=csv", "use --format csv"),
-        ("a seed=3 stays as it is", "a seed=3 stays as it is"),
-    ],
-)
-def test_library_keywords_are_shown_as_flags(message, shown):
-    from prunebench.cli import _as_flags
-
-    assert shown in _as_flags(message)
-
-
-@pytest.mark.parametrize(
     "args",
     [["--help"], ["sql", "--db", "missing.sqlite", "SELECT 1"], ["progress", "--db", "m.sqlite"]],
 )
