@@ -230,7 +230,7 @@ def decision_settings(
         ``alpha`` (float), ``metric`` (family -> metric) and ``margin`` (family ->
         margin), for the study's families.
     """
-    from .study import decision_of_text
+    from .study_decision import decision_of_text
 
     row = resolve_study(store, study)
     families = _families_of(store, row["study_id"])
@@ -281,7 +281,7 @@ def trial_counts(store: ResultStore, study: str | None = None) -> dict:
 
 def study_levels(store: ResultStore, study: str | None = None) -> dict:
     """Family -> factor -> levels in the stored study file's order (reference first)."""
-    from .study import levels_of_text
+    from .study_decision import levels_of_text
 
     row = resolve_study(store, study)
     return {f: levels_of_text(row["study_text"], f) for f in _families_of(store, row["study_id"])}
