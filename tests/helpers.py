@@ -1,4 +1,4 @@
-"""Helpers shared by the tests that run sweeps in subprocesses and compare databases.
+"""Helpers shared by the tests: sweeps run in subprocesses, databases compared, a small study.
 
 Not a test module: pytest puts this folder on ``sys.path``, so tests import it as
 ``helpers``.
@@ -115,3 +115,23 @@ def statsmodels_fit(y, v):
     if fit.tau2 > 0:
         return frame.loc["random effect wls"], frame.loc["random effect"], fit, 3
     return frame.loc["fixed effect wls"], frame.loc["fixed effect"], fit, 2
+
+
+#: a small valid study file (iris and wine, 24 trials in 8 groups) that the study tests
+#: change one line of
+GOOD = """\
+name = "unit"
+description = "a small study"
+seed = 5
+datasets = ["iris", "wine"]
+
+[outer]
+repeats = 2
+folds = 3
+
+[factors]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 3]
+inner_folds = [3]
+rule = ["min", "1se", "0.5se"]
+"""

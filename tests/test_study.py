@@ -1,31 +1,13 @@
-"""Tests of study files: validation messages, expansion into trials and groups."""
+"""Tests of study files (prunebench.study): parsing, validation messages, expansion into trials."""
 
 from __future__ import annotations
 
-import textwrap
-
 import pytest
 from click.testing import CliRunner
+from helpers import GOOD
 
 from prunebench.cli import main
 from prunebench.study import StudyError, load_study, parse_study
-
-GOOD = """\
-name = "unit"
-description = "a small study"
-seed = 5
-datasets = ["iris", "wine"]
-
-[outer]
-repeats = 2
-folds = 3
-
-[factors]
-criterion = ["gini", "entropy"]
-max_depth = ["none", 3]
-inner_folds = [3]
-rule = ["min", "1se", "0.5se"]
-"""
 
 
 def test_good_study_expands_into_trials_and_groups():
@@ -55,29 +37,6 @@ def test_trial_ids_depend_on_name_data_and_levels():
 def test_outer_defaults_to_ten_by_ten():
     study = parse_study(GOOD.replace("repeats = 2\nfolds = 3\n", ""))
     assert (study.repeats, study.folds) == (10, 10)
-
-
-def test_mixed_tasks_need_per_task_factors():
-    mixed = GOOD.replace('["iris", "wine"]', '["iris", "diabetes"]')
-    with pytest.raises(StudyError, match=r"factors.criterion.*'gini' does not fit the regression"):
-        parse_study(mixed)
-    per_task = mixed.replace('criterion = ["gini", "entropy"]\n', "") + textwrap.dedent(
-        """
-        [factors.classification]
-        criterion = ["gini", "entropy"]
-
-        [factors.regression]
-        criterion = ["squared_error"]
-        min_samples_leaf = [5]
-        """
-    )
-    study = parse_study(per_task)
-    reg = [t for t in study.trials() if t.dataset == "diabetes"]
-    assert {t.criterion for t in reg} == {"squared_error"}
-    assert {t.prune_risk for t in reg} == {"squared_error"}
-    assert {t.min_samples_leaf for t in reg} == {5}
-    cls = [t for t in study.trials() if t.dataset == "iris"]
-    assert {t.criterion for t in cls} == {"gini", "entropy"}
 
 
 def test_dataset_tables_are_accepted():
@@ -181,37 +140,6 @@ def test_malformed_studies_give_one_line_exit_2_and_touch_no_database(case, tmp_
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml", "kept.sqlite"]
 
 
-def test_max_tree_fits_bounds_the_plan_exactly():
-    # the reference count: every trial group's outer folds, each growing the full tree and
-    # one tree per inner fold, from the expansion in trials.py
-    study = parse_study(GOOD)
-    fits = sum(study.repeats * study.folds * (1 + g.inner_folds) for g in study.groups())
-    assert fits == 8 * 2 * 3 * (1 + 3)
-    allowed = GOOD.replace("seed = 5", f"seed = 5\nmax_tree_fits = {fits}")
-    assert parse_study(allowed).repeats == 2
-    with pytest.raises(StudyError, match=f"{fits} tree fits, more than max_tree_fits = {fits - 1}"):
-        parse_study(GOOD.replace("seed = 5", f"seed = 5\nmax_tree_fits = {fits - 1}"))
-
-
-def test_a_huge_plan_runs_only_when_the_study_says_so():
-    huge = GOOD.replace("repeats = 2", "repeats = 1000000000")
-    with pytest.raises(StudyError) as refused:
-        parse_study(huge, source="huge.toml")
-    # the line of the number that made the plan huge
-    line = GOOD.splitlines().index("repeats = 2") + 1
-    assert str(refused.value).startswith(f"huge.toml:{line}: key 'max_tree_fits': ")
-    assert "96,000,000,000 tree fits" in str(refused.value)
-    said = parse_study(huge.replace("seed = 5", "seed = 5\nmax_tree_fits = 96000000000"))
-    assert said.repeats == 1_000_000_000
-
-
-def test_the_largest_leaf_may_fill_the_smallest_outer_training_part():
-    # iris: 150 rows in 3 outer folds of 50, so every outer-training part has 100 rows
-    text = GOOD.replace("inner_folds = [3]", "inner_folds = [3]\nmin_samples_leaf = [100]")
-    study = parse_study(text)
-    assert study.factors["classification"]["min_samples_leaf"] == [100]
-
-
 def test_messages_carry_the_line_of_the_key(tmp_path):
     study_file = tmp_path / "bad.toml"
     study_file.write_text(GOOD.replace('"0.5se"]', '"2sd"]'))
@@ -248,245 +176,12 @@ def test_example_studies_are_valid():
         assert study.trials() or study.search is not None
 
 
-def test_friedman_mse_is_a_regression_criterion_a_study_can_sweep(tmp_path):
-    # the pruning engine handles friedman_mse (its impurity is the node's squared error);
-    # studies now accept it too, and its trees are grown, pruned and stored
-    import io
-    import sqlite3
+def test_study_still_offers_every_name_it_exported():
+    # other modules and tests import these from prunebench.study; the functions that
+    # moved out are the same objects, not copies
+    from prunebench import study, study_checks, study_decision
 
-    from prunebench.execute import Progress, conduct
-
-    study = parse_study(
-        'name = "fmse"\nseed = 1\ndatasets = ["diabetes"]\n[outer]\nrepeats = 1\nfolds = 3\n'
-        '[factors]\ncriterion = ["squared_error", "friedman_mse"]\ninner_folds = [3]\n'
-    )
-    assert study.factors["regression"]["criterion"] == ["squared_error", "friedman_mse"]
-    db = tmp_path / "r.sqlite"
-    summary = conduct(study, db, progress=Progress(0, io.StringIO()))
-    assert (summary.done, summary.failed) == (2, 0)
-    rows = sqlite3.connect(db).execute(
-        "SELECT t.criterion, COUNT(*), MIN(f.mse) FROM folds f JOIN trials t USING (trial_id) "
-        "WHERE f.arm = 'pruned' GROUP BY t.criterion"
-    )
-    counts = {c: (n, m) for c, n, m in rows}
-    assert counts["friedman_mse"][0] == 3 and counts["friedman_mse"][1] > 0
-    with pytest.raises(StudyError, match="'friedman_mse' is not a classification criterion"):
-        parse_study(
-            'name = "x"\nseed = 1\ndatasets = ["iris"]\n[factors]\ncriterion = ["friedman_mse"]\n'
-        )
-
-
-# ---- the [decision] section ------------------------------------------------------------
-
-def test_decision_defaults_follow_the_design():
-    from prunebench.study import decision_of_text
-
-    # DESIGN.md "Decision": error / mse, margins 0.01 of error and 1% of the unpruned MSE,
-    # alpha 0.05
-    assert decision_of_text(GOOD, ["classification"]) == {
-        "alpha": 0.05,
-        "metric": {"classification": "error"},
-        "margin": {"classification": 0.01},
-    }
-    both = decision_of_text("[decision]\nmetric = 'log_loss'\n", ["classification"])
-    assert both["margin"] == {"classification": 0.02}  # log loss's own default margin
-
-
-def test_decision_per_family_and_overall():
-    from prunebench.study import decision_of_text
-
-    text = (
-        "[decision]\nalpha = 0.1\nmargin = 0.03\n"
-        "[decision.classification]\nmetric = 'brier'\n"
-        "[decision.regression]\nmetric = 'mae'\nmargin = 0.05\n"
-    )
-    got = decision_of_text(text, ["classification", "regression"])
-    assert got == {
-        "alpha": 0.1,
-        "metric": {"classification": "brier", "regression": "mae"},
-        "margin": {"classification": 0.03, "regression": 0.05},
-    }
-    parse_study(GOOD + "\n[decision]\nmetric = 'accuracy'\nmargin = 0.02\nalpha = 0.5\n")
-
-
-@pytest.mark.parametrize(
-    "section, key, words",
-    [
-        ("alpha = 0.7", "decision.alpha", "(0, 0.5]"),
-        ("alpha = 0", "decision.alpha", "(0, 0.5]"),
-        ("alpha = true", "decision.alpha", "(0, 0.5]"),
-        ("margin = -0.01", "decision.margin", "> 0"),
-        ("margin = 'wide'", "decision.margin", "> 0"),
-        ("metric = 'mse'", "decision.metric", "not a classification metric"),
-        ("metric = 'bogus'", "decision.metric", "use one of error"),
-        ("cutoff = 1", "decision.cutoff", "not a decision key"),
-        ("[decision.regression]\nmetric = 'mse'", "decision.regression", "no regression"),
-        ("[decision.classification]\nalpha = 0.1", "decision.classification.alpha", "not a"),
-    ],
-)
-def test_bad_decision_sections_give_one_line_naming_the_key(section, key, words, tmp_path):
-    path = tmp_path / "s.toml"
-    path.write_text(GOOD + "\n[decision]\n" + section + "\n")
-    result = CliRunner().invoke(main, ["check", str(path)])
-    assert result.exit_code == 2
-    message = result.output.strip()
-    assert len(message.splitlines()) == 1
-    assert f"key '{key}'" in message and words in message and str(path) in message
-
-
-def test_a_metric_for_both_families_must_suit_both(tmp_path):
-    from prunebench.study import decision_of_text
-
-    with pytest.raises(StudyError, match=r"decision\.metric.*\[decision\.regression\]"):
-        decision_of_text("[decision]\nmetric = 'brier'\n", ["classification", "regression"])
-
-
-def test_levels_of_text_keep_the_files_order():
-    from prunebench.study import levels_of_text
-
-    levels = levels_of_text(GOOD, "classification")
-    assert levels["criterion"] == ["gini", "entropy"] and levels["max_depth"] == ["none", 3]
-    assert levels["rule"] == ["min", "1se", "0.5se"]
-    assert levels["min_samples_leaf"] == [1]  # the vocabulary's default
-
-
-# ---- [costs], smoothing and the factors that choose alpha and weight the classes ------------
-
-COSTS = """\
-name = "costs-unit"
-seed = 3
-{top}
-datasets = ["yeast4", "rare_logistic"{more}]
-[outer]
-repeats = 1
-folds = 3
-[factors]
-inner_folds = [3]
-{factors}
-{costs}
-"""
-KEEL_LOSS = "loss = { positive = { negative = 10 }, negative = { positive = 1 } }"
-SIM_LOSS = "loss = { 1 = { 0 = 4 }, 0 = { 1 = 1 } }"
-
-
-def _costs(costs: str, factors: str = "", more: str = "") -> str:
-    top = ""
-    if costs.startswith("smoothing"):  # a top-level key comes before the tables
-        top, _, costs = costs.partition("\n")
-    return COSTS.format(costs=costs, factors=factors, more=more, top=top)
-
-
-def test_costs_are_read_per_dataset_in_class_order():
-    study = parse_study(
-        _costs(
-            f'smoothing = "laplace"\n[costs]\n{KEEL_LOSS}\npriors = {{ negative = 0.8, '
-            f'positive = 0.2 }}\n[costs.rare_logistic]\n{SIM_LOSS}\npriors = "equal"',
-            'select_by = ["error", "auc"]\nclass_weight = ["none", "balanced"]',
-        )
-    )
-    # rows: true class, columns: predicted class, in the data set's sorted labels
-    assert study.costs["yeast4"] == (
-        ("negative", "positive"),
-        ((0.0, 1.0), (10.0, 0.0)),
-        (0.8, 0.2),
-    )
-    assert study.costs["rare_logistic"] == ((0, 1), ((0.0, 1.0), (4.0, 0.0)), "equal")
-    assert study.smoothing == "laplace"
-    assert {(t.select_by, t.class_weight) for t in study.trials()} == {
-        ("error", "none"),
-        ("error", "balanced"),
-        ("auc", "none"),
-        ("auc", "balanced"),
-    }
-
-
-@pytest.mark.parametrize(
-    "costs, factors, more, message",
-    [
-        # one study-level table cannot serve the simulation's 0/1 labels
-        (f"[costs]\n{KEEL_LOSS}", "", "", "key 'costs.loss.positive': 'positive' is not a class"),
-        (
-            "[costs]\nloss = { positive = { negative = 10 } }\n[costs.rare_logistic]\n" + SIM_LOSS,
-            "",
-            "",
-            "key 'costs.loss.negative.positive': is missing: give the cost of every mistake",
-        ),
-        (
-            "[costs.yeast4]\nloss = { positive = { negative = 10, positive = 2 }, "
-            "negative = { positive = 1 } }",
-            "",
-            "",
-            "key 'costs.yeast4.loss.positive.positive': a right prediction costs nothing",
-        ),
-        (
-            "[costs.yeast4]\nloss = { positive = { negative = -1 }, negative = { positive = 1 } }",
-            "",
-            "",
-            "key 'costs.yeast4.loss.positive.negative': a cost is a finite number >= 0; got -1",
-        ),
-        (
-            "[costs.yeast4]\nloss = { positive = { bad = 1 }, negative = { positive = 1 } }",
-            "",
-            "",
-            "key 'costs.yeast4.loss.positive.bad': 'bad' is not a class",
-        ),
-        (
-            "[costs.yeast4]\nloss = { positive = 3 }",
-            "",
-            "",
-            "key 'costs.yeast4.loss.positive': must be a table",
-        ),
-        (
-            "[costs.yeast4]\npriors = { negative = 0.5, positive = 0.4 }",
-            "",
-            "",
-            "key 'costs.yeast4.priors': the priors must sum to 1; they sum to 0.9",
-        ),
-        (
-            "[costs.yeast4]\npriors = { negative = 1.0 }",
-            "",
-            "",
-            "key 'costs.yeast4.priors.positive': is missing: give every class a prior",
-        ),
-        (
-            "[costs.yeast4]\npriors = { negative = 0.5, positive = 0.4, rare = 0.1 }",
-            "",
-            "",
-            "key 'costs.yeast4.priors.rare': 'rare' is not a class of dataset 'yeast4'",
-        ),
-        ('[costs.yeast4]\npriors = "sample"', "", "", "key 'costs.yeast4.priors': must be"),
-        ('[costs.iris]\npriors = "equal"', "", "", "key 'costs.iris': is not a dataset"),
-        (
-            '[costs.diabetes]\npriors = "equal"',
-            "",
-            ', "diabetes"',
-            "key 'costs.diabetes': dataset 'diabetes' is not a classification dataset",
-        ),
-        ("[costs.yeast4]\nweights = 2", "", "", "key 'costs.yeast4.weights': is not a costs key"),
-        ("[costs]\nloss = 3\n", "", "", "key 'costs.loss': must be a table"),
-        ('smoothing = "m0"', "", "", "key 'smoothing': 'm0' is not a smoothing"),
-        ("", 'select_by = ["error", "gain"]', "", "key 'factors.select_by': 'gain' is not"),
-        ("", 'class_weight = ["sometimes"]', "", "key 'factors.class_weight': 'sometimes'"),
-        (
-            "",
-            'select_by = ["average_precision"]',
-            ', "iris"',
-            "key 'factors.select_by': 'average_precision' needs two classes; dataset 'iris' has 3",
-        ),
-    ],
-)
-def test_costs_mistakes_give_one_line_naming_the_key(costs, factors, more, message):
-    with pytest.raises(StudyError) as err:
-        parse_study(_costs(costs, factors, more), source="c.toml")
-    text = str(err.value)
-    assert message in text and "\n" not in text, text
-    assert text.startswith("c.toml")
-
-
-def test_regression_takes_neither_class_weights_nor_other_losses():
-    text = 'name = "r"\nseed = 1\ndatasets = ["diabetes"]\n[factors]\n'
-    with pytest.raises(StudyError, match="'balanced' is not a regression class weight"):
-        parse_study(text + 'class_weight = ["balanced"]\n')
-    with pytest.raises(StudyError, match="'auc' is not a regression loss"):
-        parse_study(text + 'select_by = ["auc"]\n')
-    assert {t.select_by for t in parse_study(text).trials()} == {"mse"}
+    assert all(hasattr(study, name) for name in study.__all__)
+    assert study.decision_of_text is study_decision.decision_of_text
+    assert study.levels_of_text is study_decision.levels_of_text
+    assert study.MAX_TREE_FITS == study_checks.MAX_TREE_FITS == 10_000_000
