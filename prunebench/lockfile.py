@@ -143,7 +143,25 @@ def acquire(path: Path, attempts: int = 5) -> tuple[IO | None, str]:
     return None, holder
 
 
-def release(handle: IO) -> None:
-    """Release and close a lock file taken by :func:`acquire`."""
+def release(handle: IO, path: Path | None = None) -> None:
+    """Release and close a lock file taken by :func:`acquire`, removing it first.
+
+    The file is unlinked while still locked, so nothing is left beside a finished
+    database.  A process that opened it meanwhile gets the lock of a file that is no
+    longer at ``path``; :func:`acquire` sees that (:func:`_is_current`) and locks a
+    new one.
+
+    Parameters
+    ----------
+    handle : file
+        The open, locked file :func:`acquire` returned.
+    path : Path, optional
+        Where it lies; given, the file is removed if it is still the one there.
+    """
+    if path is not None and _is_current(handle, path):
+        try:
+            path.unlink()
+        except OSError:
+            pass  # a read-only folder keeps it; it is free once unlocked
     fcntl.flock(handle, fcntl.LOCK_UN)
     handle.close()

@@ -21,13 +21,11 @@ import sqlite3
 from pathlib import Path
 
 from .exceptions import QueryError, StoreError
-from .store import connect_readonly
+from .store import SQLITE_HEADER, connect_readonly
 
 __all__ = ["csv_text", "fetch", "json_text", "results_path", "table_text"]
 
 # ---- which file --------------------------------------------------------------------------
-
-_SQLITE_HEADER = b"SQLite format 3\x00"
 
 
 def results_path(path: str | Path) -> Path:
@@ -56,10 +54,10 @@ def results_path(path: str | Path) -> Path:
     path = Path(path)
     try:
         with open(path, "rb") as f:
-            head = f.read(len(_SQLITE_HEADER))
+            head = f.read(len(SQLITE_HEADER))
     except OSError:
         return path
-    if not head or head == _SQLITE_HEADER:
+    if not head or head == SQLITE_HEADER:
         return path
     from .study import study_database
 

@@ -71,6 +71,24 @@ def _explain(path: Path, err: sqlite3.Error, reading: bool = False) -> StoreErro
     return StoreError(f"{path}: cannot use this results database: {text}")
 
 
+#: the first 16 bytes of every SQLite database file
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def _refuse_other_files(path: Path) -> None:
+    """Refuse, before anything is written beside it, a file that is not SQLite at all."""
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(len(SQLITE_HEADER))
+    except (FileNotFoundError, IsADirectoryError, PermissionError):
+        return  # a new database, or a reason SQLite explains when it opens it
+    if head and head != SQLITE_HEADER:
+        raise StoreError(
+            f"{path} is not a results database (not an SQLite file); prunebench will "
+            "not write to it: give a new file name or an existing results database"
+        )
+
+
 def connect_readonly(path: str | Path) -> sqlite3.Connection:
     """Open a results database for reading only, without creating any file beside it.
 
@@ -156,6 +174,7 @@ class ResultStore:
         self._in_wal = False
         if readonly and not self.path.exists():
             raise StoreError(f"{self.path}: no such results database")
+        _refuse_other_files(self.path)
         if lock:
             self._take_lock()
         try:
@@ -200,7 +219,7 @@ class ResultStore:
 
     def _release_lock(self) -> None:
         if self._lock_handle is not None:
-            lockfile.release(self._lock_handle)
+            lockfile.release(self._lock_handle, lockfile.lock_path(self.path))
             self._lock_handle = None
 
     def _prepare(self) -> None:

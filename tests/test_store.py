@@ -76,11 +76,25 @@ def test_newer_schema_and_foreign_files_are_refused(tmp_path):
     conn.close()
     with pytest.raises(StoreError, match="not a prunebench results database"):
         ResultStore(foreign)
+    # a file that is not SQLite at all (a study file given as --db, say) is refused
+    # before its lock file is made: nothing is written beside it
+    study_file = tmp_path / "typo.toml"
+    study_file.write_text('name = "typo"\n')
+    with pytest.raises(StoreError, match=r"typo.toml is not a results database \(not an SQLite"):
+        ResultStore(study_file, lock=True)
+    assert study_file.read_text() == 'name = "typo"\n'
+    # an SQLite file whose pages are garbage is damaged
     garbage = tmp_path / "garbage.sqlite"
-    garbage.write_bytes(b"this is not a database" * 100)
+    garbage.write_bytes(b"SQLite format 3\x00" + b"this is not a database" * 100)
     with pytest.raises(StoreError, match="is damaged"):
-        ResultStore(garbage)
-    assert garbage.read_bytes() == b"this is not a database" * 100
+        ResultStore(garbage, lock=True)
+    assert garbage.read_bytes() == b"SQLite format 3\x00" + b"this is not a database" * 100
+    assert sorted(p.name for p in tmp_path.iterdir()) == [
+        "foreign.sqlite",
+        "garbage.sqlite",
+        "newer.sqlite",
+        "typo.toml",
+    ]
 
 
 def test_second_writer_is_refused(tmp_path):
@@ -89,7 +103,9 @@ def test_second_writer_is_refused(tmp_path):
         with pytest.raises(StoreError, match="being written by another 'prunebench conduct'"):
             ResultStore(path, lock=True)
     with ResultStore(path, lock=True):  # released on close
-        pass
+        assert path.with_name("r.sqlite.lock").exists()
+    # and removed: a finished database has nothing beside it
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.sqlite"]
 
 
 def test_readonly_store_refuses_writes(filled):
@@ -191,11 +207,10 @@ def test_a_lock_whose_holder_died_is_taken_over(tmp_path):
                 ResultStore(path, lock=True)
     finally:
         os.kill(orphan, 9)
-    # nothing of the takeover is left behind but the lock file and its guard
+    # nothing of the takeover is left behind but its guard: the lock file goes on close
     assert sorted(p.name for p in tmp_path.iterdir()) == [
         "child.pid",
         "stale.sqlite",
-        "stale.sqlite.lock",
         "stale.sqlite.lock.takeover",
     ]
 
