@@ -306,12 +306,10 @@ def rank(database, study, metric, margin, alpha, as_json, as_csv) -> None:
     signed-rank test uses the study's margin as its region of practical equivalence.
     Mean ranks depend on the pool of configurations: the default comes from 'recommend'.
     """
-    from .effects import check_decision
     from .ranks import ranking, ranking_frame
     from .text import rank_text
 
     settings = _settings(database, study, metric, margin, alpha)
-    check_decision("rank", settings["margin"], settings["alpha"])
     results = ranking(
         _fold_rows(database, study, settings["metric"]),
         settings["metric"],

@@ -42,25 +42,54 @@ def _per_family(levels: dict) -> str:
 SWITCHES = {"overwrite": "--overwrite"}
 
 
-def _as_flags(message: str, commands) -> str:
+def _as_flags(
+    message: str, commands, options: dict[str, str] | None = None, running: str = ""
+) -> str:
     """A library message with its ``keyword=`` names written as this command line's flags.
 
     ``commands`` are the command names: a parameter error whose owner is one of them
-    names an option of that command; any other owner is a library function.
+    names an option of that command.  ``options`` maps the keywords of the command
+    ``running`` to its flags: a library function's parameter that one of them set (``rule`` of the
+    estimator behind ``demo --rule``) is named as that option; any other stays as the
+    library's parameter.
     """
     switches = r"\b(" + "|".join(SWITCHES) + r")=True\b"
     message = re.sub(switches, lambda m: SWITCHES[m.group(1)], message)
     pattern = r"\b(" + "|".join(FLAGS) + r")=(?=\.\.\.|\S)"
     message = re.sub(pattern, lambda m: FLAGS[m.group(1)] + " ", message)
     # the one parameter-error template names a keyword: from here it is an option
-    template = r"^The '(" + "|".join(FLAGS) + r")' parameter of (\w+)"
+    options = options or {}
 
     def as_option(m: re.Match) -> str:
-        if m.group(2) not in commands:  # a library function's own parameter
-            return m.group(0)
-        return f"The '{FLAGS[m.group(1)]}' option of prunebench {m.group(2)}"
+        keyword, owner = m.group(1), m.group(2)
+        if owner in commands and keyword in FLAGS:
+            return f"The '{FLAGS[keyword]}' option of prunebench {owner}"
+        if keyword in options and owner not in commands:
+            return f"The '{options[keyword]}' option of prunebench {running}".rstrip()
+        return m.group(0)  # a library function's own parameter
 
-    return re.sub(template, as_option, message)
+    return re.sub(r"^The '(\w+)' parameter of (\w+)", as_option, message)
+
+
+def _options_of(context) -> dict[str, str]:
+    """The running command's keywords and their flags (``{"rule": "--rule"}``)."""
+    if context is None:
+        return {}
+    return {
+        p.name: max(p.opts, key=len)
+        for p in context.command.params
+        if isinstance(p, click.Option) and p.name
+    }
+
+
+def _check_decision_flags(name: str, kwargs: dict) -> None:
+    """Refuse a command's ``--margin`` or ``--alpha`` out of range before anything is read."""
+    margin, alpha = kwargs.get("margin"), kwargs.get("alpha")
+    if margin is None and alpha is None:
+        return
+    from .effects import check_decision
+
+    check_decision(name, margin, 0.05 if alpha is None else alpha)
 
 
 def _reports_errors(command):
@@ -68,13 +97,16 @@ def _reports_errors(command):
 
     @functools.wraps(command)
     def run(*args, **kwargs):
+        context = click.get_current_context(silent=True)
         try:
+            _check_decision_flags(context.info_name if context else command.__name__, kwargs)
             return command(*args, **kwargs)
         except PrunebenchError as err:
-            context = click.get_current_context(silent=True)
             group = context.find_root().command if context is not None else None
             commands = getattr(group, "commands", {})
-            click.echo(f"error: {_as_flags(str(err), commands)}", err=True)
+            running = context.info_name if context is not None else ""
+            message = _as_flags(str(err), commands, _options_of(context), running)
+            click.echo(f"error: {message}", err=True)
             sys.exit(err.exit_code)
 
     return run

@@ -336,7 +336,7 @@ def test_report_into_a_folder_that_cannot_be_written_is_one_line(small_db, tmp_p
         undo()
     assert result.exit_code == 2, result.output
     assert result.output.startswith("error: ") and result.output.count("\n") == 1
-    assert "'out'" in result.output and "r.html" in result.output
+    assert "The '--out' option of prunebench report" in result.output and "r.html" in result.output
     assert left == []
 
 
@@ -346,7 +346,8 @@ def test_report_whose_parent_is_a_file_is_one_line(small_db, tmp_path):
         result = CliRunner().invoke(main, ["report", "--db", str(small_db), "--out", str(out)])
         assert result.exit_code == 2, result.output
         assert result.output.startswith("error: ") and result.output.count("\n") == 1
-        assert "'out'" in result.output and "notes.txt" in result.output
+        assert "The '--out' option of prunebench report" in result.output
+        assert "notes.txt" in result.output
     assert sorted(p.name for p in tmp_path.iterdir()) == ["notes.txt"]
     assert (tmp_path / "notes.txt").read_text() == "a file, not a folder"
 
