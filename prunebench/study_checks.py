@@ -125,13 +125,15 @@ def _check_folds(
         return
     if data.smallest_class < folds:
         labels, counts = np.unique(data.y, return_counts=True)
+        label = labels[np.argmin(counts)]
+        label = label.item() if isinstance(label, np.generic) else label  # 0, not np.int64(0)
         where = f"dataset {key!r}"
         if data.info.file:
             where += f" (column {data.info.target!r} of {data.info.file})"
         raise check.fail(
             "outer.folds",
             f"{folds} folds is more than the {counted(data.smallest_class, 'row')} of class "
-            f"{labels[np.argmin(counts)]!r}, the smallest class of {where}",
+            f"{label!r}, the smallest class of {where}",
         )
     # the inner CV runs on the outer-training part: about (folds-1)/folds of it
     inner_rows = data.smallest_class * (folds - 1) // folds

@@ -78,7 +78,12 @@ MALFORMED = [
     ("inner folds 1", ("inner_folds = [3]", "inner_folds = [1]"), "factors.inner_folds", ">= 2"),
     ("unknown dataset", ('"wine"]', '"winequality"]'), "datasets", "unknown dataset"),
     ("empty datasets", ('datasets = ["iris", "wine"]', "datasets = []"), "datasets", "non-empty"),
-    ("folds beyond smallest class", ("folds = 3", "folds = 60"), "outer.folds", "smallest class"),
+    (
+        "folds beyond smallest class",
+        ("folds = 3", "folds = 60"),
+        "outer.folds",
+        "rows of class 0, the smallest class",  # a plain label, not np.int64(0)
+    ),
     (
         "inner folds beyond smallest class",
         ("inner_folds = [3]", "inner_folds = [40]"),
