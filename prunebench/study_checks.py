@@ -17,8 +17,8 @@ from .trials import FACTORS, SearchSpec
 from .vocabulary import CLASSIFICATION, counted, family_of, growth_factors
 from .vocabulary import FACTORS as _FACTOR_SPECS
 
-#: tree fits a study may plan without saying so (``max_tree_fits``): about 14 times the
-#: largest example study (studies/overnight.toml, 714,000 fits); at a few milliseconds a
+#: tree fits a study may plan without saying so (``max_tree_fits``): about 27 times the
+#: largest example study (studies/overnight.toml, 364,800 fits); at a few milliseconds a
 #: fit that is a day or more of one core, so a larger plan is more often a mistyped
 #: number than an intent
 MAX_TREE_FITS = 10_000_000
