@@ -307,7 +307,6 @@ def _comparison(table: pd.DataFrame) -> str:
         }
     )
     metrics = list(metric_of)
-    rows_html = []
     # per-metric formatting needs the row's metric: format columns row by row
     formatted = view.copy().astype(object)
     for col in ("pruned", "unpruned"):
@@ -320,7 +319,6 @@ def _comparison(table: pd.DataFrame) -> str:
     formatted["leaves saved"] = view["leaves saved"].map(
         lambda v: "—" if _missing(v) else f"{v:.1f}".replace("-", "−")
     )
-    del rows_html
     return (
         "<p>diff = pruned − unpruned (negative: pruning lowers the loss); 95% interval by "
         "the corrected resampled t (Nadeau &amp; Bengio 2003); verdicts follow Holm-adjusted "

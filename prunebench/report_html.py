@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .plots import FIGURES
+from .vocabulary import THREE_DECIMAL_METRICS
 
 _STYLE = """
 body { font-family: Georgia, 'DejaVu Serif', serif; margin: 0; color: #222; background: #fbfaf7; }
@@ -72,9 +73,6 @@ document.querySelectorAll('input.filter').forEach(function (box) {
 });
 """
 
-#: metrics shown with three decimals (rates, probabilities, log loss); others with 4 figures
-_DECIMAL_METRICS = {"error", "accuracy", "balanced_accuracy", "brier", "log_loss", "auc", "r2"}
-
 
 def _missing(value) -> bool:
     if value is None or value is pd.NA or value is pd.NaT:
@@ -111,7 +109,7 @@ def format_number(value, metric: str | None = None, signed: bool = False) -> str
     if not math.isfinite(value):
         return "∞" if value > 0 else "−∞"
     sign = "+" if signed else ""
-    if metric in _DECIMAL_METRICS:
+    if metric in THREE_DECIMAL_METRICS:
         text = f"{value:{sign}.3f}"
     elif abs(value) >= 1e4:
         text = f"{value:{sign},.0f}"  # 12,346 rather than 1.235e+04

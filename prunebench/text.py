@@ -10,7 +10,15 @@ from __future__ import annotations
 import textwrap
 
 from .snippets import long_label
-from .vocabulary import REGRESSION, config_label, counted, family_of, higher_is_better, is_relative
+from .vocabulary import (
+    REGRESSION,
+    THREE_DECIMAL_METRICS,
+    config_label,
+    counted,
+    family_of,
+    higher_is_better,
+    is_relative,
+)
 
 __all__ = [
     "compare_text",
@@ -137,10 +145,6 @@ def _search_found_text(found: dict) -> list[str]:
     return lines
 
 
-#: metrics written with three decimals (rates, probabilities, log loss); others by size
-_DECIMAL_METRICS = {"error", "accuracy", "balanced_accuracy", "brier", "log_loss", "auc", "r2"}
-
-
 def _metric_number(value, metric: str, signed: bool = False) -> str:
     """A metric's value as the tables print it: three decimals for rates and probabilities,
     four significant figures (thousands separated above 10,000) for MSE-like losses; "-" when
@@ -150,7 +154,7 @@ def _metric_number(value, metric: str, signed: bool = False) -> str:
     if value is None or pd.isna(value):
         return "-"
     sign = "+" if signed else ""
-    if metric in _DECIMAL_METRICS:
+    if metric in THREE_DECIMAL_METRICS:
         text = f"{value:{sign}.3f}"
     elif abs(value) >= 1e4:
         text = f"{value:{sign},.0f}"

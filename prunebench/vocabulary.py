@@ -28,6 +28,7 @@ __all__ = [
     "PRUNE_RISKS",
     "REGRESSION",
     "SELECT_BY",
+    "THREE_DECIMAL_METRICS",
     "Configuration",
     "Factor",
     "Metric",
@@ -234,6 +235,11 @@ METRICS: dict[str, Metric] = {
         Metric("r2", REGRESSION, True, 0.01),
     )
 }
+#: metrics the tables and the report write with three decimals (rates, probabilities,
+#: log loss, R²); the others (losses in the data's units, small decompositions) by size
+THREE_DECIMAL_METRICS = frozenset(
+    {"error", "accuracy", "balanced_accuracy", "brier", "log_loss", "auc", "r2"}
+)
 #: the metric statistics use when none is named, per family
 DEFAULT_METRIC = {CLASSIFICATION: "error", REGRESSION: "mse"}
 
