@@ -31,8 +31,18 @@ __all__ = [
     "run_query",
 ]
 
-TABLES = ("studies", "datasets", "trials", "folds", "curves", "environments")
-VIEWS = ("arm_summary", "fold_differences")
+#: the stored tables; ``folds`` (a view) gives the fold tables in the per-trial, per-arm shape
+TABLES = (
+    "studies",
+    "datasets",
+    "trials",
+    "growths",
+    "unpruned_folds",
+    "pruned_folds",
+    "curves",
+    "environments",
+)
+VIEWS = ("folds", "arm_summary", "fold_differences")
 
 
 class Results:
@@ -64,8 +74,9 @@ class Results:
         Parameters
         ----------
         name : str
-            One of the tables (studies, datasets, trials, folds, curves, environments) or
-            views (arm_summary, fold_differences).
+            One of the tables (studies, datasets, trials, growths, unpruned_folds,
+            pruned_folds, curves, environments) or views (folds, arm_summary,
+            fold_differences).
         """
         if name not in TABLES + VIEWS:
             raise QueryError(f"no table or view {name!r}; use one of {', '.join(TABLES + VIEWS)}")

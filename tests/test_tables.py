@@ -17,6 +17,13 @@ from prunebench.tables import TABLES, VIEWS
 def test_open_results_round_trips_what_the_store_wrote(small_db):
     results = open_results(small_db)
     conn = sqlite3.connect(small_db)
+    # every table and view the store makes is readable here and exported
+    stored = conn.execute(
+        "SELECT type, name FROM sqlite_master WHERE type IN ('table', 'view') "
+        "AND name NOT LIKE 'sqlite_%'"
+    ).fetchall()
+    assert sorted(name for kind, name in stored if kind == "table") == sorted(TABLES)
+    assert sorted(name for kind, name in stored if kind == "view") == sorted(VIEWS)
     for name in TABLES + VIEWS:
         ours = results.table(name)
         cursor = conn.execute(f'SELECT * FROM "{name}"')
