@@ -325,10 +325,12 @@ class _Clock:
         return time.perf_counter() - self.start
 
     def check(self) -> None:
-        if self.limit is not None and self.elapsed() > self.limit:
+        elapsed = self.elapsed()
+        if self.limit is not None and elapsed > self.limit:
+            # three figures, so a small limit's overrun reads as one (0.0123 s past 0.01 s)
             raise TrialTimeout(
                 f"stopped: the trial group ran past the study's time_limit of {self.limit:g} s "
-                f"({self.elapsed():.1f} s)"
+                f"({elapsed:.3g} s)"
             )
 
 

@@ -451,3 +451,14 @@ def test_laplace_smoothing_reaches_the_stored_probability_metrics():
         assert row["brier"] == pytest.approx(2 * brier_score_loss(data.y[test], p[:, 1]), rel=1e-12)
         # pure leaves no longer rule the log loss; the predictions are the same
         assert row["log_loss"] < raw_row["log_loss"] and row["error"] == raw_row["error"]
+
+
+def test_a_small_time_limit_reports_an_elapsed_time_above_it(monkeypatch):
+    # with one decimal, 0.0123 s past a 0.01 s limit was written "(0.0 s)"
+    from prunebench import evaluate
+
+    clock = evaluate._Clock(0.01)
+    monkeypatch.setattr(clock, "elapsed", lambda: 0.0123)
+    with pytest.raises(evaluate.TrialTimeout, match=r"time_limit of 0\.01 s \(0\.0123 s\)"):
+        clock.check()
+    evaluate._Clock(None).check()  # no limit: never stops

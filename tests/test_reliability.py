@@ -525,7 +525,7 @@ def test_a_trial_past_the_time_limit_is_stopped_and_recorded(tmp_path, monkeypat
     )
     assert status == {"iris": "done", "digits": "failed"}
     error = conn.execute("SELECT error FROM trials WHERE status = 'failed'").fetchone()[0]
-    assert "time_limit of 1 s" in error and "(5.0 s)" in error
+    assert "time_limit of 1 s" in error and "(5 s)" in error
     assert summary.done == 1 and summary.failed == 1
     assert clocks[1].checks == 4  # stopped at the check before its fourth fit
 
