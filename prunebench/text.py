@@ -53,6 +53,15 @@ def _wrap(text: str, indent: str = "") -> str:
 # ---- check and conduct -------------------------------------------------------------------
 
 
+def _search_range_text(value: tuple) -> str:
+    """One search dimension in words: ``choices gini, entropy``; ``integers 1 to 40, log scale``."""
+    if value[0] == "choices":
+        return "choices " + ", ".join(str(v) for v in value[1])
+    if value[0] == "float":
+        return f"numbers {value[1]:g} to {value[2]:g}"
+    return f"integers {value[1]} to {value[2]}" + (", log scale" if value[3] else "")
+
+
 def _search_plan_text(study) -> list[str]:
     spec = study.search
     lines = [
@@ -61,8 +70,7 @@ def _search_plan_text(study) -> list[str]:
         f"{'on' if spec.early_stopping else 'off'}, seed {spec.seed})"
     ]
     for name, value in spec.space.items():
-        shown = list(value[1:]) if value[0] != "choices" else value[1]
-        lines.append(f"  {name}: {value[0]} {shown}")
+        lines.append(f"  {name}: {_search_range_text(value)}")
     lines.append(
         f"each configuration runs on {counted(len(study.datasets), 'dataset')}: "
         f"{', '.join(study.datasets)}; outer CV {study.repeats} x {study.folds}"

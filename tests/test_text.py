@@ -123,11 +123,15 @@ def test_plan_text_of_a_search_lists_its_space():
     study = parse_study(
         'name = "p"\nseed = 1\ndatasets = ["iris"]\n[search]\nsampler = "random"\n'
         "configurations = 4\n[search.space]\nmax_depth = [1, 2]\n"
+        "min_samples_leaf = { low = 1, high = 40, log = true }\n"
+        "se = { low = 0.0, high = 2.5 }\n"
     )
     text = plan_text(study, [], Path("p.sqlite"), 2)
     assert text.splitlines() == [
         "study 'p': a search (random sampler, 4 configurations, early stopping on, seed 1)",
-        "  max_depth: choices [1, 2]",
+        "  max_depth: choices 1, 2",
+        "  min_samples_leaf: integers 1 to 40, log scale",
+        "  se: numbers 0 to 2.5",
         "each configuration runs on 1 dataset: iris; outer CV 10 x 10",
     ]
 
