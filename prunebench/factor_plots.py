@@ -13,7 +13,7 @@ import seaborn as sns
 from matplotlib.figure import Figure
 
 from .drawing import _figure
-from .vocabulary import higher_is_better
+from .vocabulary import counted, higher_is_better
 
 __all__ = [
     "MAX_CD_CONFIGS",
@@ -171,12 +171,14 @@ def critical_difference_diagram(ranked: dict, max_configs: int = MAX_CD_CONFIGS)
         if p is not None and p >= 0.05
         else ""
     )
+    bars_note = "; red bars join configurations the test cannot tell apart"
     if len(ranked["datasets"]) < 2:
         verdict = "\none data set: the ranks are that data set's order, no test across data sets"
+        bars_note = ""  # no test, so no bars
     fig.suptitle(
         f"{ranked['family']}: critical-difference diagram ({ranked['metric']}, "
-        f"{len(ranked['datasets'])} data sets; best {len(table)} of {k_all} configurations; "
-        f"red bars join configurations the test cannot tell apart){verdict}",
+        f"{counted(len(ranked['datasets']), 'data set')}; best {len(table)} of {k_all} "
+        f"configurations{bars_note}){verdict}",
         fontsize=10,
     )
     fig.bars_drawn = bars  # for tests and readers of the figure object

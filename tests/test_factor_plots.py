@@ -50,6 +50,16 @@ def test_critical_difference_diagram_lists_every_configuration(folds):
     assert shown == len(ranked["table"])
     assert sum("(" in t.get_text() for t in ax.texts) == shown
     assert fig.bars_drawn >= 1  # at least one group of configurations not told apart
+    title = fig._suptitle.get_text()
+    assert f"{len(ranked['datasets'])} data sets;" in title and "red bars join" in title
+
+
+def test_critical_difference_diagram_of_one_data_set_names_no_test(folds):
+    one = folds[folds["dataset"] == folds["dataset"].iloc[0]]
+    ranked = ranks.ranking(one)[0]
+    title = factor_plots.critical_difference_diagram(ranked)._suptitle.get_text()
+    assert "1 data set;" in title and "1 data sets" not in title
+    assert "red bars" not in title and "no test across data sets" in title
 
 
 def test_factor_effects_figure_one_row_per_contrast_with_the_margin_band(folds):
