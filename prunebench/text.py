@@ -97,18 +97,26 @@ def plan_text(study, rows: list[dict], database, workers: int) -> str:
         f"study {study.name!r}: {study.description}".rstrip(": "),
         f"seed {study.seed}, outer CV {counted(study.repeats, 'repeat')} x {study.folds} folds, "
         f"database {database}",
-        f"{'dataset':<28} {'task':<11} {'rows':>7} {'features':>8} {'trials':>6} "
-        f"{'tree fits':>9} {'est. s':>8}",
     ]
+    # the widest name sets the column: a simulation's name carries its parameters
+    name_width = max([28, *(len(r["dataset"]) for r in rows)])
+    lines.append(
+        f"{'dataset':<{name_width}} {'task':<11} {'rows':>7} {'features':>8} {'trials':>6} "
+        f"{'tree fits':>9} {'est. s':>8}"
+    )
     for r in rows:
         lines.append(
-            f"{r['dataset']:<28} {r['task']:<11} {r['rows']:>7} {r['features']:>8} "
+            f"{r['dataset']:<{name_width}} {r['task']:<11} {r['rows']:>7} {r['features']:>8} "
             f"{r['trials']:>6} {r['fits']:>9} {r['seconds']:>8.1f}"
         )
     total_fits = sum(r["fits"] for r in rows)
     total_seconds = sum(r["seconds"] for r in rows)
     for task, levels in study.factors.items():
-        lines.append(f"factors ({task}): " + "; ".join(f"{k} {v}" for k, v in levels.items()))
+        shown = "; ".join(
+            f"{k} " + ", ".join("none" if v is None else str(v) for v in values)
+            for k, values in levels.items()
+        )
+        lines.append(_wrap(f"factors ({task}): {shown}"))
     lines += [
         f"{counted(len(study.trials()), 'trial')} in {counted(len(study.groups()), 'group')} "
         f"(trials that share the grown trees share their fits); "

@@ -55,7 +55,15 @@ def test_conduct_text_has_one_row_per_dataset_rule_and_metric():
     lines = conduct_text(summary, table).splitlines()
     row = next(line for line in lines if line.startswith("iris"))
     assert row.split() == [
-        "iris", "1se", "error", "0.100", "0.080", "-0.020", "0.012*", "12.0", "4.0"
+        "iris",
+        "1se",
+        "error",
+        "0.100",
+        "0.080",
+        "-0.020",
+        "0.012*",
+        "12.0",
+        "4.0",
     ]
     row = next(line for line in lines if line.startswith("wine"))
     assert row.split()[5:7] == ["0.000", "-"]  # no p where none could be computed
@@ -67,13 +75,20 @@ def test_counts_of_one_are_singular():
     empty = pd.DataFrame(columns=["unpruned", "pruned", "leaves_unpruned", "leaves_pruned"])
     assert conduct_text(summary, empty).startswith("1 trial done, 0 failed")
     report = {
-        "study": "s", "done": 1, "failed": 0, "pending": 0, "total": 1,
-        "rate_per_minute": None, "eta": "-", "last_finished": None, "errors": [],
+        "study": "s",
+        "done": 1,
+        "failed": 0,
+        "pending": 0,
+        "total": 1,
+        "rate_per_minute": None,
+        "eta": "-",
+        "last_finished": None,
+        "errors": [],
     }
     assert " pending of 1 trial; " in progress_text(report)
     study = parse_study(
         'name = "one"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\nfolds = 2\n'
-        '[factors]\ninner_folds = [2]\n'
+        "[factors]\ninner_folds = [2]\n"
     )
     text = plan_text(study, [], Path("one.sqlite"), 1)
     assert "outer CV 1 repeat x 2 folds" in text
@@ -84,6 +99,25 @@ def test_counts_of_one_are_singular():
     )
     assert "2 trials in 1 group " in plan_text(many, [], Path("two.sqlite"), 1)
     assert "outer CV 2 repeats x 2 folds" in plan_text(many, [], Path("two.sqlite"), 1)
+
+
+def test_plan_text_columns_fit_the_longest_name_and_levels_are_words():
+    study = parse_study(
+        'name = "w"\nseed = 1\ndatasets = [{ name = "friedman1", n_samples = 1000, seed = 1 }]\n'
+        '[outer]\nrepeats = 1\nfolds = 2\n[factors]\ninner_folds = [2]\nmax_depth = ["none", 4]\n'
+    )
+    row = {"task": "regression", "rows": 1000, "features": 10, "trials": 2, "fits": 6}
+    rows = [
+        {**row, "dataset": "friedman1(n_samples=1000, seed=1)", "seconds": 3.0},
+        {**row, "dataset": "short", "seconds": 1.0},
+    ]
+    lines = plan_text(study, rows, Path("w.sqlite"), 1).splitlines()
+    table = lines[2:5]
+    assert {
+        line.index("task") if i == 0 else line.index("regression") for i, line in enumerate(table)
+    } == {len("friedman1(n_samples=1000, seed=1)") + 1}
+    assert len({len(line) for line in table}) == 1  # every row ends in the same column
+    assert "max_depth none, 4;" in lines[5] and "[" not in lines[5]
 
 
 def test_conduct_text_columns_aligned_and_formatted_per_metric():
