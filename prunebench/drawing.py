@@ -162,7 +162,7 @@ def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> Figure:
             ]
         )
     averaged = np.mean(averaged, axis=0)
-    fig = _figure(figsize=(12, 4.6), layout="constrained")
+    fig = _figure(figsize=(12, 5.2), layout="constrained")
     axes = fig.subplots(1, 2, sharey=True)
     panels = [
         (
@@ -218,7 +218,16 @@ def pruning_curves(curves: pd.DataFrame, title_context: str = "") -> Figure:
         _size_axis(size.yaxis, leaves)
         handles = ax.get_legend_handles_labels()
         extra = size.get_legend_handles_labels()
-        ax.legend(handles[0] + extra[0], handles[1] + extra[1], fontsize=8, loc="upper left")
+        # below the panel: inside it the legend covered the curve's start on some data sets
+        ax.legend(
+            handles[0] + extra[0],
+            handles[1] + extra[1],
+            fontsize=8,
+            loc="upper center",
+            bbox_to_anchor=(0.5, -0.16),
+            ncols=3,
+            frameon=False,
+        )
     axes[0].set_ylabel("inner-CV loss (error rate or MSE)")
     fig.suptitle(f"Pruning curves{': ' + title_context if title_context else ''}")
     return fig
