@@ -202,12 +202,12 @@ def _whole_counts(score, pos, neg, n_cand) -> bool:
     summed counts of all nodes; the pairs way cumulates over every candidate).
     """
     counts = np.concatenate([pos, neg])
-    if np.isnan(score).any() or not (counts >= 0).all():
+    total = float(counts.sum())  # NaN or inf fail the bound
+    if not 2.0 * total * max(float(n_cand), total) < _EXACT_BOUND:
         return False
-    if not np.array_equal(counts, np.floor(counts)):
+    if np.isnan(score).any() or counts.min(initial=0.0) < 0:
         return False
-    total = float(counts.sum())
-    return 2.0 * total * max(float(n_cand), total) < _EXACT_BOUND
+    return bool((np.floor(counts) == counts).all())
 
 
 def _count_table(key_lo, key_hi, weights, n_scores, width) -> np.ndarray:
