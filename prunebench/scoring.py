@@ -10,7 +10,10 @@ candidate subtree follows from those pooled counts (:func:`candidate_losses`):
   interval in which it is their leaf, one difference array for all candidates;
 - ranking losses (1 - ROC AUC, 1 - average precision): per candidate, the pooled
   positive and negative counts of its leaves ordered by leaf score, ties pooled
-  (a tie counts as half a pair, as scikit-learn's ``roc_auc_score`` does).
+  (a tie counts as half a pair, as scikit-learn's ``roc_auc_score`` does).  With
+  whole-number counts (no row weights) each distinct leaf set is scored once from
+  integer tables of the counts per leaf score; otherwise every candidate's leaves
+  are sorted by score, so weighted sums keep their order of summation.
 
 The pooled counts do not depend on the pruning risk, so one :class:`LeafCounts`
 serves the paths of one tree under every risk, and one call scores every loss.
@@ -169,8 +172,122 @@ def _pairs(lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return rep, lo[rep] + np.arange(rep.size) - start[rep]
 
 
+# Below this, sums of whole numbers in float64 are exact in any order.
+_EXACT_BOUND = 2.0**52
+
+
 def _ranking_losses(score, pos, neg, totals, lo, hi, n_cand, want_ap: bool):
     """Per candidate ROC AUC (and average precision) from per-node counts.
+
+    Node ``i`` is a leaf of the candidate subtrees ``lo[i] <= c < hi[i]``; ``pos``
+    and ``neg`` are the held-out positives and negatives pooled at each node.
+    Returns ``(auc, ap)``, NaN where a class is absent from ``totals``.
+
+    Both ways give the same bits when the counts are whole numbers: every sum
+    of whole numbers up to 2**52 is then exact, whatever its order, in either way,
+    and what is not a whole number (each AP precision, its products and their
+    sum in score order, the final divisions) is computed from the same operands
+    in the same order. Other counts (row weights) take the per-candidate sort,
+    whose order of floating-point summation stored results were computed in.
+    """
+    if _whole_counts(score, pos, neg, n_cand):
+        return _ranking_by_tables(score, pos, neg, totals, lo, hi, n_cand, want_ap)
+    return _ranking_by_pairs(score, pos, neg, totals, lo, hi, n_cand, want_ap)
+
+
+def _whole_counts(score, pos, neg, n_cand) -> bool:
+    """Whether every count is a non-negative whole number small enough to sum exactly.
+
+    The largest sum either way forms is below ``max(n_cand, W) * W`` (``W`` the
+    summed counts of all nodes; the pairs way cumulates over every candidate).
+    """
+    counts = np.concatenate([pos, neg])
+    total = float(counts.sum())  # NaN or inf fail the bound
+    if not 2.0 * total * max(float(n_cand), total) < _EXACT_BOUND:
+        return False
+    if np.isnan(score).any() or counts.min(initial=0.0) < 0:
+        return False
+    return bool((np.floor(counts) == counts).all())
+
+
+def _count_table(key_lo, key_hi, weights, n_scores, width) -> np.ndarray:
+    """Per segment (rows) and distinct score (columns), the counts of the live nodes.
+
+    Each node adds its count at its first segment and takes it at its end, in a
+    score-major table whose rows therefore each sum to 0: one flat cumulative sum
+    runs along the segments of every score.
+    """
+    diff = np.bincount(
+        np.concatenate([key_lo, key_hi]),
+        np.concatenate([weights, -weights]),
+        n_scores * width,
+    ).astype(np.int64)
+    np.cumsum(diff, out=diff)
+    return diff.reshape(n_scores, width).T.copy()
+
+
+def _ranking_by_tables(score, pos, neg, totals, lo, hi, n_cand, want_ap: bool):
+    """Per candidate ROC AUC (and average precision) from integer count tables.
+
+    Candidates between two consecutive ends of the nodes' intervals share one set
+    of leaves (a segment); per segment and distinct leaf score the live positives
+    ``P`` and negatives ``N`` form two int64 tables, and cumulative sums along the
+    scores give each segment's negatives below a score (AUC) and its positives and
+    negatives at or above it (AP). Tied leaves share a column, so a tie counts
+    half a pair. For whole-number counts only (:func:`_whole_counts`).
+    """
+    total_pos, total_neg = totals
+    auc = np.full(n_cand, np.nan)
+    ap = np.full(n_cand, np.nan)
+    want_auc = total_pos > 0 and total_neg > 0
+    want_ap = want_ap and total_pos > 0
+    if not (want_auc or want_ap):
+        return auc, ap
+    live = np.flatnonzero(lo < hi)
+    lo, hi = lo[live], hi[live]
+    cut = np.zeros(n_cand + 1, bool)
+    cut[lo] = True
+    cut[hi] = True
+    cut[0] = cut[n_cand] = True
+    seg = np.cumsum(cut) - 1  # the segment of every candidate; n_cand -> the end
+    n_seg = int(seg[n_cand])
+    width = n_seg + 1
+    s = score[live]
+    order = np.argsort(s)
+    ordered = s[order]
+    distinct = np.ones(s.size, bool)
+    np.not_equal(ordered[1:], ordered[:-1], out=distinct[1:])
+    rank = np.empty(s.size, np.intp)
+    rank[order] = np.cumsum(distinct) - 1
+    n_scores = int(distinct.sum())
+    key_lo, key_hi = rank * width + seg[lo], rank * width + seg[hi]
+    P = _count_table(key_lo, key_hi, pos[live], n_scores, width)
+    N = _count_table(key_lo, key_hi, neg[live], n_scores, width)
+    seg_of = seg[:n_cand]
+    if want_auc:
+        # twice (negatives below the score + half those tied with it), per cell
+        below = N.ravel().cumsum().reshape(width, n_scores)
+        below -= below[:, :1] - N[:, :1]
+        below *= 2
+        below -= N
+        pairs = np.einsum("ij,ij->i", P, below) * 0.5
+        pairs /= total_pos * total_neg
+        auc = pairs[seg_of]
+    if want_ap:
+        # scores holding positives, in ascending order per segment as the pairs way sums
+        cell = np.flatnonzero(P[:n_seg].ravel() > 0)
+        row = cell // n_scores
+        last = (row + 1) * n_scores - 1
+        cum_p, cum_n = P.ravel().cumsum(), N.ravel().cumsum()
+        p = P.ravel()[cell]
+        tp = cum_p[last] - cum_p[cell] + p
+        fp = cum_n[last] - cum_n[cell] + N.ravel()[cell]
+        ap = (np.bincount(row, p * (tp / (tp + fp)), n_seg) / total_pos)[seg_of]
+    return auc, ap
+
+
+def _ranking_by_pairs(score, pos, neg, totals, lo, hi, n_cand, want_ap: bool):
+    """Per candidate ROC AUC (and average precision), each candidate's leaves sorted.
 
     Node ``i`` is a leaf of the candidate subtrees ``lo[i] <= c < hi[i]``. The
     (node, candidate) pairs are generated with the nodes in score order and then
@@ -201,8 +318,10 @@ def _ranking_losses(score, pos, neg, totals, lo, hi, n_cand, want_ap: bool):
     if total_pos > 0 and total_neg > 0:
         below = np.cumsum(N) - N
         below = below - below[first][group]
-        auc = np.bincount(C, weights=P * (below + 0.5 * N), minlength=n_cand)
-        auc /= total_pos * total_neg
+        # one division, not in place: without pairs bincount returns integers
+        auc = np.bincount(C, weights=P * (below + 0.5 * N), minlength=n_cand) / (
+            total_pos * total_neg
+        )
     if want_ap and total_pos > 0:
         # descending score within each candidate: cumulate from each group's end
         above_p, above_n = np.cumsum(P[::-1])[::-1], np.cumsum(N[::-1])[::-1]

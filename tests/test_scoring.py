@@ -117,8 +117,12 @@ def test_one_pass_refuses_wrong_loss_for_the_task():
         scoring.candidate_losses(path, held, cart_candidates(path.alphas), "average_precision")
 
 
+_RANKING_WAYS = [scoring._ranking_by_pairs, scoring._ranking_by_tables]
+
+
+@pytest.mark.parametrize("way", _RANKING_WAYS, ids=["pairs", "tables"])
 @pytest.mark.parametrize("n_cand", [7, 2**15 + 3])
-def test_ranking_by_candidate_matches_brute_force(n_cand):
+def test_ranking_by_candidate_matches_brute_force(n_cand, way):
     # by hand: each candidate's AUC and AP from the leaves live at it, through the
     # metrics checked against scikit-learn above; the second size takes the int32 sort
     rng = np.random.default_rng(n_cand)
@@ -129,7 +133,7 @@ def test_ranking_by_candidate_matches_brute_force(n_cand):
     hi = np.minimum(lo + rng.integers(0, 4, m), n_cand)
     probe = np.unique(np.r_[lo, np.maximum(hi - 1, 0)])
     totals = (pos.sum(), neg.sum())  # as if every row were live everywhere
-    auc, ap = scoring._ranking_losses(score, pos, neg, totals, lo, hi, n_cand, True)
+    auc, ap = way(score, pos, neg, totals, lo, hi, n_cand, True)
     for c in probe:
         live = (lo <= c) & (c < hi)
         p, n = pos[live], neg[live]
@@ -148,3 +152,77 @@ def test_ranking_by_candidate_matches_brute_force(n_cand):
         if p.sum() > 0:
             expected = losses.average_precision(y, rows) * p.sum() / totals[0]
             assert ap[c] == pytest.approx(expected, abs=1e-12)
+
+
+def _ranking_reference(score, pos, neg, totals, lo, hi, n_cand):
+    """Candidate by candidate in plain Python: AUC and AP from the pooled leaf counts.
+
+    Whole-number counts only, so every count sum is exact; the AP terms are added
+    in ascending score order, the order both ways of :mod:`prunebench.scoring` use.
+    """
+    total_pos, total_neg = totals
+    auc, ap = np.full(n_cand, np.nan), np.full(n_cand, np.nan)
+    for c in range(n_cand):
+        live = [i for i in range(score.size) if lo[i] <= c < hi[i]]
+        scores = sorted({float(score[i]) for i in live})
+        P = [sum(float(pos[i]) for i in live if score[i] == v) for v in scores]
+        N = [sum(float(neg[i]) for i in live if score[i] == v) for v in scores]
+        if total_pos > 0 and total_neg > 0:
+            pairs = sum(P[j] * (sum(N[:j]) + 0.5 * N[j]) for j in range(len(scores)))
+            auc[c] = pairs / (total_pos * total_neg)
+        if total_pos > 0:
+            acc = 0.0
+            for j in range(len(scores)):
+                if P[j] > 0:
+                    tp, fp = sum(P[j:]), sum(N[j:])
+                    acc += P[j] * (tp / (tp + fp))
+            ap[c] = acc / total_pos
+    return auc, ap
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_ranking_tables_equal_a_plain_reference_bit_for_bit(seed):
+    # whole-number counts with many tied scores, overlapping intervals, empty ones and
+    # a class absent in one case (NaN): the tables and the sort give the same bits
+    rng = np.random.default_rng(seed)
+    m, n_cand = 40, 30
+    score = rng.integers(0, 5, m) / 4.0
+    pos, neg = rng.integers(0, 6, m).astype(float), rng.integers(0, 6, m).astype(float)
+    lo = rng.integers(0, n_cand + 1, m)
+    hi = np.minimum(lo + rng.integers(-2, 12, m), n_cand)
+    totals = (0.0, neg.sum()) if seed == 3 else (pos.sum(), neg.sum())
+    expected = _ranking_reference(score, pos, neg, totals, lo, hi, n_cand)
+    for way in _RANKING_WAYS + [scoring._ranking_losses]:
+        got = way(score, pos, neg, totals, lo, hi, n_cand, True)
+        for g, e in zip(got, expected, strict=True):
+            assert np.array_equal(g, e, equal_nan=True), way.__name__
+
+
+def test_whole_counts_choose_the_tables():
+    score, ones = np.array([0.2, 0.5]), np.ones(2)
+    assert scoring._whole_counts(score, ones * 3, ones, 10)
+    assert not scoring._whole_counts(score, ones * 0.5, ones, 10)  # row weights
+    assert not scoring._whole_counts(score, -ones, ones, 10)
+    assert not scoring._whole_counts(np.array([0.2, np.nan]), ones, ones, 10)
+    assert not scoring._whole_counts(score, ones * 2.0**30, ones, 10)  # sums not exact
+
+
+@pytest.mark.parametrize("n_classes", [2, 3])
+@pytest.mark.parametrize("absent", [False, True])
+def test_one_pass_ranking_by_tables_equals_by_pairs(n_classes, absent, monkeypatch):
+    # pure leaves tie at 0 and 1; a class missing from the held-out rows gives NaN
+    tree, X, y = _fold(n_classes, 11)
+    if absent:
+        X, y = X[y != 1], y[y != 1]
+    path = pruning_path(tree, "impurity")
+    held = scoring.leaf_counts(tree, X, y, classes=tree.classes_)
+    alphas = cart_candidates(path.alphas)
+    names = ("auc", "average_precision") if n_classes == 2 else ("auc",)
+    with monkeypatch.context() as patched:  # unweighted counts take the tables
+        patched.setattr(scoring, "_ranking_by_pairs", None)
+        got = scoring.candidate_losses(path, held, alphas, names)
+    monkeypatch.setattr(scoring, "_whole_counts", lambda *args: False)
+    expected = scoring.candidate_losses(path, held, alphas, names)
+    for name in names:
+        assert np.array_equal(got[name], expected[name], equal_nan=True), name
+    assert np.isnan(got["auc"]).any() == (absent and n_classes == 2)
