@@ -335,7 +335,7 @@ def compare_text(table, alpha: float = 0.05) -> str:
     return "\n".join(lines)
 
 
-def _rank_heading(res: dict, alpha: float) -> list[str]:
+def _rank_heading(res: dict, alpha: float, width: int = 29) -> list[str]:
     f, n = res["friedman"], len(res["datasets"])
     lines = [
         _wrap(
@@ -355,17 +355,17 @@ def _rank_heading(res: dict, alpha: float) -> list[str]:
     else:
         lines.append(_wrap("tests across datasets need two or more datasets of the task"))
     lines.append(
-        f"{'configuration':<29} {'mean rank':>9} {'W/T/L':>8} "
+        f"{'configuration':<{width}} {'mean rank':>9} {'W/T/L':>8} "
         f"{'mean ' + res['metric']:>10} {'leaves':>7} {'ok':>3} {'Wilcoxon':>8} "
         f"{'P(pr+)':>6} {'P(=)':>5} {'P(un+)':>6}"
     )
     return lines
 
 
-def _rank_row(r) -> str:
+def _rank_row(r, width: int = 29) -> str:
     wtl = f"{r['wins']}/{r['ties']}/{r['losses']}"
     return (
-        f"{config_label(r)[:29]:<29} {r['mean_rank']:>9.2f} {wtl:>8} "
+        f"{config_label(r):<{width}} {r['mean_rank']:>9.2f} {wtl:>8} "
         f"{_fmt(r['mean_metric'], '10.4g'):>10} {r['mean_leaves']:>7.1f} "
         f"{'yes' if r['not_worse'] else 'no':>3} {_fmt(r.get('wilcoxon_p'), '8.3f'):>8} "
         f"{_fmt(r.get('p_pruned_better'), '6.2f'):>6} "
@@ -378,11 +378,15 @@ def rank_text(results: list[dict], alpha: float) -> str:
     """:func:`prunebench.ranks.ranking`'s results as text, one block per task family.
 
     Says first, under the test line, when Friedman's test cannot separate the
-    configurations (p >= alpha, or no test with one data set).
+    configurations (p >= alpha, or no test with one data set).  The configuration
+    column is as wide as the longest label (at least 29), so no label is cut and
+    configurations that differ in any level read differently.
     """
     lines = []
     for res in results:
-        heading = _rank_heading(res, alpha)
+        labels = [config_label(r) for _, r in res["table"].iterrows()]
+        width = max([29, *map(len, labels)])
+        heading = _rank_heading(res, alpha, width)
         if not res.get("separated", True):
             heading.insert(
                 2,
@@ -393,7 +397,7 @@ def rank_text(results: list[dict], alpha: float) -> str:
                 ),
             )
         lines += heading
-        lines += [_rank_row(r) for _, r in res["table"].iterrows()]
+        lines += [_rank_row(r, width) for _, r in res["table"].iterrows()]
         rope = res.get("rope", 0.01)
         relative = " of the unpruned loss" if is_relative(res["metric"]) else ""
         lines.append(
