@@ -566,7 +566,7 @@ def interaction_effects(
                             "reference": reference,
                             "metric": m,
                             "by": by,
-                            "by_level": lv[by][by_code] if by in lv else None,
+                            "by_level": spelled_level(by, lv[by][by_code]) if by in lv else None,
                             "estimate": r["estimate"],
                             "ci_low": r["ci_low"],
                             "ci_high": r["ci_high"],

@@ -333,3 +333,13 @@ def test_no_class_weighting_is_spelled_none_as_in_the_study_file():
     assert set(weights["level"]) == {"balanced"} and set(weights["reference"]) == {"none"}
     records = [r for r in effects.effect_records(table) if r["factor"] == "class_weight"]
     assert {(r["level"], r["reference"]) for r in records} == {("balanced", "none")}
+
+
+def test_interactions_spell_no_class_weighting_none():
+    folds = _synthetic()
+    folds["class_weight"] = np.where(folds["fold"] % 2 == 0, "none", "balanced")
+    table = effects.interaction_effects(
+        folds, {"rule": ["a", "b"], "class_weight": ["none", "balanced"]}
+    )
+    within = table[(table["factor"] == "rule") & (table["by"] == "class_weight")]
+    assert set(within["by_level"]) == {"none", "balanced"}
