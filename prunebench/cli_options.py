@@ -188,7 +188,10 @@ def _emit(frame, as_json: bool, as_csv: bool) -> bool:
     if as_json and as_csv:
         raise click.UsageError("give --json or --csv, not both")
     if as_json:
-        click.echo(json.dumps(json.loads(frame.to_json(orient="records")), indent=2))
+        # not pandas' to_json, which keeps 10 decimals (a p-value of 1e-13 becomes 0.0):
+        # every float whole, as the CSV writes it; missing values (NaN, NA) as null
+        cells = frame.astype(object).where(frame.notna(), None)
+        click.echo(json.dumps(_json_ready(cells.to_dict("records")), indent=2))
         return True
     if as_csv:
         click.echo(frame.to_csv(index=False), nl=False)

@@ -18,6 +18,7 @@ import seaborn as sns
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from .effects import _norm
 from .recommend import config_frame
 from .selection import MinimumRule, StandardErrorRule
 from .vocabulary import (
@@ -363,7 +364,8 @@ def size_against_error(
     means["pruned"] = [c[4] != "unpruned" for c in means["config"]]
     chosen = None
     if recommended is not None:
-        chosen = Configuration.of(recommended).key()
+        # spelled as the frame's keys are (no class weighting as None, not "none")
+        chosen = tuple(_norm(v) for v in Configuration.of(recommended).key())
     datasets = sorted(means["dataset"].unique())
     cols = min(3, len(datasets))
     nrows = int(np.ceil(len(datasets) / cols))

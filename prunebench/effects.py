@@ -57,6 +57,7 @@ from .vocabulary import (
     higher_is_better,
     is_relative,
     metric_names,
+    spelled_level,
 )
 from .vocabulary import FACTORS as _FACTOR_SPECS
 
@@ -368,7 +369,8 @@ def _level_names(rows: pd.DataFrame, levels: dict, family: str, factor: str, cod
     if lv is None:
         lv = [_norm(rows[factor].iloc[0])]
     present = sorted(rows.loc[rows["arm"] == "pruned", f"code_{factor}"].unique())
-    return lv[code], lv[present[0]]
+    # as the machine outputs spell levels: no class weighting is "none", as in a study file
+    return spelled_level(factor, lv[code]), spelled_level(factor, lv[present[0]])
 
 
 def _reference_code(rows: pd.DataFrame, factor: str) -> int:
@@ -564,7 +566,7 @@ def interaction_effects(
                             "reference": reference,
                             "metric": m,
                             "by": by,
-                            "by_level": lv[by][by_code] if by in lv else None,
+                            "by_level": spelled_level(by, lv[by][by_code]) if by in lv else None,
                             "estimate": r["estimate"],
                             "ci_low": r["ci_low"],
                             "ci_high": r["ci_high"],

@@ -32,7 +32,7 @@ from .factor_plots import (
 from .ranks import ranking
 from .recommend import recommend
 from .results import resolve_study, trial_curves
-from .snippets import long_label
+from .snippets import long_label, own_data, with_study
 from .stats import comparison
 from .store import ResultStore
 from .vocabulary import (
@@ -321,12 +321,6 @@ def study_levels(study_text: str, folds: pd.DataFrame) -> dict:
     return out
 
 
-def own_data(study_text: str) -> bool:
-    """Whether the study's data sets are the team's own (described by manifests)."""
-    datasets = tomllib.loads(study_text).get("datasets", [])
-    return bool(datasets) and all(isinstance(d, dict) for d in datasets)
-
-
 def _family_counts(store: ResultStore, study_id: str) -> dict[str, dict]:
     rows = store.query(
         "SELECT d.task, t.status, COUNT(*) AS n FROM trials t JOIN datasets d USING "
@@ -380,6 +374,8 @@ def decision_inputs(
             recs += recommend(rows, metric, margin, alpha, trials=counts)
         except PrunebenchError as err:
             problems[family] = str(err)
+    # the study's costs and smoothing, so the report's estimator is the configuration chosen
+    recs = with_study(recs, info["study_text"])
     for r in recs:
         r["unpruned_leaves"] = _unpruned_leaves(folds, r["family"], r["config"])
     return {

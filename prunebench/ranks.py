@@ -41,7 +41,9 @@ from .vocabulary import (
     family_of,
     growth_factors,
     higher_is_better,
+    integer_factors,
     is_relative,
+    spelled_level,
 )
 
 __all__ = ["ranking", "ranking_frame", "recommendation", "separates"]
@@ -178,6 +180,11 @@ def _rank_family(folds: pd.DataFrame, family: str, metric: str, alpha: float, ro
             }
         )
     table = pd.DataFrame(rows).sort_values(["mean_rank", "mean_leaves"]).reset_index(drop=True)
+    # integer levels stay integers beside the unpruned trees' missing inner folds and an
+    # unlimited depth (nullable, as ``Results.table`` reads them); no weighting is "none"
+    for name in integer_factors():
+        table[name] = pd.array([spelled_level(name, v) for v in table[name]], dtype="Int64")
+    table["class_weight"] = [spelled_level("class_weight", v) for v in table["class_weight"]]
     return {
         "family": family,
         "metric": metric,

@@ -36,7 +36,14 @@ from scipy import stats as sps
 from .effects import FACTORS, _norm, check_decision, for_family, losses
 from .exceptions import EffectsError, parameter_error
 from .metaanalysis import fill_zero_variances, random_effects_many
-from .vocabulary import DEFAULT_METRIC, default_margin, family_of, growth_factors, metric_names
+from .vocabulary import (
+    DEFAULT_METRIC,
+    Configuration,
+    default_margin,
+    family_of,
+    growth_factors,
+    metric_names,
+)
 
 __all__ = [
     "config_frame",
@@ -52,7 +59,11 @@ _GROWTH = growth_factors()
 
 
 def config_label(config) -> str:
-    """A short label of a configuration, e.g. ``"gini depth=none leaf=1 k=10 1se error"``.
+    """A configuration's named label, e.g. ``"gini depth=none leaf=1 k=10 1se error"``.
+
+    :meth:`prunebench.vocabulary.Configuration.label` with ``named=True``: levels other
+    than the defaults add ``class_weight=...`` and ``select_by=...``, so configurations
+    that differ in any level have different labels.
 
     Parameters
     ----------
@@ -64,12 +75,7 @@ def config_label(config) -> str:
     -------
     str
     """
-    c = dict(zip(FACTORS, config, strict=True)) if not isinstance(config, dict) else config
-    depth = "none" if _norm(c["max_depth"]) is None else c["max_depth"]
-    head = f"{c['criterion']} depth={depth} leaf={c['min_samples_leaf']}"
-    if c["rule"] == "unpruned":
-        return f"{head} unpruned"
-    return f"{head} k={c['inner_folds']} {c['rule']} {c['prune_risk']}"
+    return Configuration.of(config).label(named=True)
 
 
 def config_frame(folds: pd.DataFrame, family: str, metric: str) -> pd.DataFrame:
@@ -226,7 +232,8 @@ def _held_out(L, N, ratio, margin, alpha, datasets, configs) -> dict:
 
 
 def _as_dict(config: tuple) -> dict:
-    return dict(zip(FACTORS, config, strict=True))
+    """The levels as the machine outputs write them (no class weighting as ``"none"``)."""
+    return Configuration.of(config).record()
 
 
 def recommend(
@@ -394,10 +401,8 @@ def stability(frame: pd.DataFrame, config) -> pd.DataFrame | None:
     rows = frame[frame["config"].map(lambda c: c == tuple(config))]
     out = []
     for dataset, g in rows.groupby("dataset", sort=True):
-        roots = [
-            "" if r is None or (isinstance(r, float) and np.isnan(r)) else str(r)
-            for r in g["root_feature"]
-        ]
+        # a single leaf has no root split: NULL in the store, NA or NaN in the frame
+        roots = ["" if pd.isna(r) else str(r) for r in g["root_feature"]]
         counts = pd.Series(roots).value_counts(sort=True)
         top = sorted(counts.index[counts == counts.max()])[0]
         sets = [_feature_set(f) for f in g["features_used"]]

@@ -89,7 +89,6 @@ def _decision_box(r: dict) -> str:
     else:
         saved = f"<b>Leaves.</b> {r['mean_leaves']:.1f} on average (an unpruned tree)."
     lines.append(saved)
-    rec = {"family": r["family"], "config": config}
     stab = _stability(r.get("stability"))
     return (
         f'<div class="decision" id="decision-{r["family"]}">'
@@ -99,9 +98,10 @@ def _decision_box(r: dict) -> str:
         + "".join(f"<p>{line}</p>" for line in lines)
         + stab
         + '<div class="cols"><div><b>As an estimator</b><pre>'
-        + html.escape(estimator_block(rec))
+        # the whole record: the study's costs and smoothing belong in the estimator
+        + html.escape(estimator_block(r))
         + "</pre></div><div><b>As a study-file fragment</b><pre>"
-        + html.escape(study_fragment(rec))
+        + html.escape(study_fragment(r))
         + "</pre></div></div></div>"
     )
 

@@ -7,6 +7,8 @@ against the table that serves it (:func:`_costs_of_datasets`).
 
 from __future__ import annotations
 
+import tomllib
+
 import numpy as np
 
 from .exceptions import InvalidParameterError
@@ -151,3 +153,65 @@ def _priors(check: _Checker, where: str, priors: object, names: list, dataset: s
     if abs(total - 1.0) > 1e-9:
         raise check.fail(key, f"the priors must sum to 1; they sum to {total:g}", key)
     return tuple(float(priors[n]) for n in names)
+
+
+def _label_order(names: list[str]) -> list[str]:
+    """Class names in the order ``numpy.unique`` sorts the labels they name.
+
+    Numbers (``0``, ``1``, ``10``) sort as numbers, any other names as text.
+    """
+
+    def number(name: str) -> float | None:
+        try:
+            return float(name)
+        except ValueError:
+            return None
+
+    if names and all(number(n) is not None for n in names):
+        return sorted(names, key=number)
+    return sorted(names)
+
+
+def costs_of_text(study_text: str, datasets: list[str]) -> dict:
+    """The loss matrix and priors a stored study text gives each of some data sets.
+
+    What a trial of the study used, read back without loading the data: the class
+    names come from the ``loss`` and ``priors`` tables, in the order ``numpy.unique``
+    sorts the labels (the estimators' ``classes_`` order).
+
+    Parameters
+    ----------
+    study_text : str
+        A study file's text (as stored in the results database).
+    datasets : list of str
+        The data sets to read the costs of (a name without costs is left out).
+
+    Returns
+    -------
+    dict
+        Data set -> ``{"classes": [...], "loss_matrix": tuple of rows or None,
+        "priors": "data", "equal" or a tuple}``.
+    """
+    check = _Checker(study_text, "the stored study")
+    doc = _costs_section(check, tomllib.loads(study_text).get("costs"))
+    out = {}
+    for name in datasets:
+        spec, where = (doc[name], f"costs.{name}") if name in doc else (doc[""], "costs")
+        if not spec:
+            continue
+        loss, priors = spec.get("loss"), spec.get("priors", "data")
+        names = set(loss or {}) | {p for row in (loss or {}).values() for p in row}
+        names |= set(priors) if isinstance(priors, dict) else set()
+        names = _label_order([str(n) for n in names])
+        out[name] = {
+            "classes": names,
+            "loss_matrix": _loss_matrix(check, where, loss, names, name),
+            "priors": _priors(check, where, priors, names, name),
+        }
+    return out
+
+
+def smoothing_of_text(study_text: str) -> str | None:
+    """The ``smoothing`` of a stored study text (None when it sets none)."""
+    check = _Checker(study_text, "the stored study")
+    return _smoothing(check, tomllib.loads(study_text).get("smoothing"))

@@ -355,7 +355,7 @@ def compare_text(table, alpha: float = 0.05) -> str:
     return "\n".join(lines)
 
 
-def _rank_heading(res: dict, alpha: float) -> list[str]:
+def _rank_heading(res: dict, alpha: float, width: int = 29) -> list[str]:
     f, n = res["friedman"], len(res["datasets"])
     lines = [
         _wrap(
@@ -375,17 +375,26 @@ def _rank_heading(res: dict, alpha: float) -> list[str]:
     else:
         lines.append(_wrap("tests across datasets need two or more datasets of the task"))
     lines.append(
-        f"{'configuration':<29} {'mean rank':>9} {'W/T/L':>8} "
+        f"{'configuration':<{width}} {'mean rank':>9} {'W/T/L':>8} "
         f"{'mean ' + res['metric']:>10} {'leaves':>7} {'ok':>3} {'Wilcoxon':>8} "
         f"{'P(pr+)':>6} {'P(=)':>5} {'P(un+)':>6}"
     )
     return lines
 
 
-def _rank_row(r) -> str:
+#: the rank table's numbers after the configuration column, in characters
+_RANK_NUMBERS = 71
+
+
+def _rank_row(r, width: int = 29) -> str:
+    """One configuration's row; a label wider than the column gets a line of its own."""
     wtl = f"{r['wins']}/{r['ties']}/{r['losses']}"
+    label = config_label(r)
+    head = f"{label:<{width}}"
+    if len(label) > width:
+        head = f"{label}\n{'':<{width}}"
     return (
-        f"{config_label(r)[:29]:<29} {r['mean_rank']:>9.2f} {wtl:>8} "
+        f"{head} {r['mean_rank']:>9.2f} {wtl:>8} "
         f"{_fmt(r['mean_metric'], '10.4g'):>10} {r['mean_leaves']:>7.1f} "
         f"{'yes' if r['not_worse'] else 'no':>3} {_fmt(r.get('wilcoxon_p'), '8.3f'):>8} "
         f"{_fmt(r.get('p_pruned_better'), '6.2f'):>6} "
@@ -398,11 +407,18 @@ def rank_text(results: list[dict], alpha: float) -> str:
     """:func:`prunebench.ranks.ranking`'s results as text, one block per task family.
 
     Says first, under the test line, when Friedman's test cannot separate the
-    configurations (p >= alpha, or no test with one data set).
+    configurations (p >= alpha, or no test with one data set).  No label is cut, so
+    configurations that differ in any level read differently: the configuration
+    column widens to the longest label while the lines stay within 100 characters,
+    and a longer label is written on a line of its own above its numbers.
     """
     lines = []
     for res in results:
-        heading = _rank_heading(res, alpha)
+        labels = [config_label(r) for _, r in res["table"].iterrows()]
+        width = max([29, *map(len, labels)])
+        if width + _RANK_NUMBERS > 100:
+            width = 29
+        heading = _rank_heading(res, alpha, width)
         if not res.get("separated", True):
             heading.insert(
                 2,
@@ -413,7 +429,7 @@ def rank_text(results: list[dict], alpha: float) -> str:
                 ),
             )
         lines += heading
-        lines += [_rank_row(r) for _, r in res["table"].iterrows()]
+        lines += [_rank_row(r, width) for _, r in res["table"].iterrows()]
         rope = res.get("rope", 0.01)
         relative = " of the unpruned loss" if is_relative(res["metric"]) else ""
         lines.append(

@@ -5,7 +5,7 @@ Built, like :mod:`prunebench.text`, from what the library returned, fitted to 10
 
 from __future__ import annotations
 
-from .snippets import CAUTION, estimator_block, study_fragment
+from .snippets import caution_for, estimator_block, study_fragment
 from .text import _fmt, _wrap
 from .vocabulary import config_label, is_relative
 
@@ -182,8 +182,9 @@ def _stability_lines(rows: list[dict] | None) -> list[str]:
             f"{_fmt(s['jaccard'], '7.2f'):>7} {leaves:>15} {alpha:>20}"
         )
     lines.append(
-        "   root: feature index most outer folds split on first; share: of the folds; Jaccard: "
-        "mean pairwise\n   similarity of the features the trees use"
+        "   root: feature index most outer folds split on first (leaf: most folds' trees are "
+        "a single\n   leaf); share: of the folds; Jaccard: mean pairwise similarity of the "
+        "features the trees use"
     )
     return lines
 
@@ -209,11 +210,17 @@ def _decided_lines(r: dict) -> list[str]:
             f"{margin:g} (fewest leaves first):",
             "   ",
         ),
-        f"   {'configuration':<34} {'mean ' + m:>12} {'leaves':>7} {'upper bound':>11}",
     ]
-    for a in r["acceptable"][:10]:
+    # as wide as the longest label shown: a cut label could read as another configuration
+    shown = r["acceptable"][:10]
+    width = max([34, *(len(config_label(a["config"])) for a in shown)])
+    wide = max(12, len("mean " + m))
+    lines.append(
+        f"   {'configuration':<{width}} {'mean ' + m:>{wide}} {'leaves':>7} {'upper bound':>11}"
+    )
+    for a in shown:
         lines.append(
-            f"   {config_label(a['config'])[:34]:<34} {a['mean_loss']:>12.4g} "
+            f"   {config_label(a['config']):<{width}} {a['mean_loss']:>{wide}.4g} "
             f"{a['mean_leaves']:>7.1f} {a['upper_bound']:>+11.4f}"
         )
     if len(r["acceptable"]) > 10:
@@ -244,7 +251,9 @@ def recommend_text(recs: list[dict]) -> str:
     First the trials done, failed and pending per task family and every family that
     could not be decided; then per family the recommended configuration, B, the
     acceptable set with its upper bounds, the held-out regret of the rule, the
-    stability of the chosen trees (when stored), the code to paste and the caution.
+    stability of the chosen trees (when stored), the code to paste and the caution,
+    worded for the team's own data when the records say so (``own_data``, from
+    :func:`prunebench.snippets.with_study`).
     """
     lines = _recommend_header(recs)
     lines.append("")
@@ -257,5 +266,6 @@ def recommend_text(recs: list[dict]) -> str:
             lines += [_wrap(f"no recommendation: {r['reason']}", "   "), ""]
             continue
         lines += _decided_lines(r)
-    lines.append(_wrap("Caution: " + CAUTION))
+    own = any(r.get("own_data", False) for r in recs)
+    lines.append(_wrap("Caution: " + caution_for(own)))
     return "\n".join(lines)

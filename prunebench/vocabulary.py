@@ -40,9 +40,11 @@ __all__ = [
     "family_of",
     "growth_factors",
     "higher_is_better",
+    "integer_factors",
     "is_relative",
     "metric_names",
     "prune_risk_names",
+    "spelled_level",
 ]
 
 # ---- task families ---------------------------------------------------------------------
@@ -181,6 +183,43 @@ def growth_factors() -> list[str]:
     return [f.name for f in FACTORS.values() if f.changes_tree]
 
 
+def integer_factors() -> list[str]:
+    """The factors whose levels are integers (``max_depth`` also "none", unlimited)."""
+    return [f.name for f in FACTORS.values() if f.kind in ("int", "depth")]
+
+
+def spelled_level(factor: str, value: object) -> object:
+    """A level as the machine outputs (JSON, CSV) write it, one spelling per level.
+
+    Integer levels as Python ints, an unlimited ``max_depth`` as None (JSON ``null``,
+    an empty CSV field), no class weighting as ``"none"`` (as a study file spells it,
+    whether the level arrives as ``"none"``, None or NaN); other levels unchanged.
+
+    Parameters
+    ----------
+    factor : str
+        A factor name (another name returns ``value`` with only NaN made None).
+    value : object
+
+    Returns
+    -------
+    object
+
+    Examples
+    --------
+    >>> spelled_level("inner_folds", 5.0), spelled_level("class_weight", None)
+    (5, 'none')
+    """
+    value = _plain(value)
+    if factor == "class_weight":
+        return "none" if value is None else value
+    if factor == "max_depth" and isinstance(value, str) and value.lower() == "none":
+        return None
+    if factor in FACTORS and FACTORS[factor].kind in ("int", "depth") and value is not None:
+        return int(value)
+    return value
+
+
 # ---- metrics ---------------------------------------------------------------------------
 
 
@@ -308,6 +347,11 @@ def _plain(value: object) -> object:
 _DEFAULT_LEVELS = {"select_by": ("error", "mse"), "class_weight": ("none",)}
 
 
+def _shown(factor: str, value: object) -> bool:
+    """Whether a label shows a level of ``select_by`` or ``class_weight`` (not a default)."""
+    return value not in (None, *_DEFAULT_LEVELS[factor])
+
+
 @dataclass(frozen=True)
 class Configuration:
     """One configuration: the level of every factor.
@@ -364,23 +408,48 @@ class Configuration:
             self.class_weight,
         )
 
-    def label(self) -> str:
+    def record(self) -> dict:
+        """The levels as the machine outputs write them (:func:`spelled_level`).
+
+        Integer levels as ints, an unlimited depth as None, no class weighting as
+        ``"none"``; an unpruned tree's ``inner_folds``, ``prune_risk`` and
+        ``select_by`` stay None.
+        """
+        return {name: spelled_level(name, value) for name, value in self.levels().items()}
+
+    def shows(self, factor: str) -> bool:
+        """Whether labels show this configuration's ``select_by`` or ``class_weight``.
+
+        They do when the level is known and not the default (``error`` / ``mse``,
+        ``none``), the levels every study had before these factors.
+        """
+        return _shown(factor, getattr(self, factor))
+
+    def label(self, named: bool = False) -> str:
         """A short label, e.g. ``"entr d=none l=5 k=10 1se err"``.
 
         Levels other than the defaults add ``cw=bal`` (class weight) after the growth
-        levels and ``by=auc`` (the loss that chose alpha) at the end.
+        levels and ``by=auc`` (the loss that chose alpha) at the end.  Two
+        configurations that differ in any level have different labels.
+
+        Parameters
+        ----------
+        named : bool, default=False
+            The longer form ``recommend`` prints, levels unabbreviated and named:
+            ``"entropy depth=none leaf=5 class_weight=balanced k=10 1se error
+            select_by=auc"``.
         """
         depth = "none" if self.max_depth is None else int(self.max_depth)
-        criterion = _SHORT.get(self.criterion, self.criterion)
-        head = f"{criterion} d={depth} l={int(self.min_samples_leaf)}"
-        if self.class_weight not in (None, *_DEFAULT_LEVELS["class_weight"]):
-            head += f" cw={_SHORT.get(self.class_weight, self.class_weight)}"
+        short = (lambda v: v) if named else (lambda v: _SHORT.get(v, v))
+        keys = ("depth", "leaf", "class_weight", "select_by") if named else ("d", "l", "cw", "by")
+        head = f"{short(self.criterion)} {keys[0]}={depth} {keys[1]}={int(self.min_samples_leaf)}"
+        if self.shows("class_weight"):
+            head += f" {keys[2]}={short(self.class_weight)}"
         if not self.pruned:
             return f"{head} unpruned"
-        risk = _SHORT.get(self.prune_risk, self.prune_risk)
-        label = f"{head} k={int(self.inner_folds)} {self.rule} {risk}"
-        if self.select_by not in (None, *_DEFAULT_LEVELS["select_by"]):
-            label += f" by={_SHORT.get(self.select_by, self.select_by)}"
+        label = f"{head} k={int(self.inner_folds)} {self.rule} {short(self.prune_risk)}"
+        if self.shows("select_by"):
+            label += f" {keys[3]}={short(self.select_by)}"
         return label
 
 

@@ -206,3 +206,56 @@ def test_effects_json_rows_are_the_issues_keys(small_db):
     assert csv.output.splitlines()[0].startswith("family,factor,level,reference,metric")
     both = CliRunner().invoke(main, ["effects", "--db", str(small_db), "--json", "--csv"])
     assert both.exit_code == 2
+
+
+def _restudied(mixed_db, tmp_path, datasets: str, more: str = "") -> str:
+    """A copy of the mixed database whose stored study file names other data and costs."""
+    import shutil
+    import sqlite3
+
+    path = tmp_path / "copy.sqlite"
+    shutil.copy(mixed_db, path)
+    with sqlite3.connect(path) as conn:
+        (text,) = conn.execute("SELECT study_text FROM studies").fetchone()
+        text = re.sub(r"(?m)^datasets = .*$", f"datasets = {datasets}", text) + more
+        conn.execute("UPDATE studies SET study_text = ?", [text])
+    conn.close()
+    return str(path)
+
+
+def test_recommend_words_its_caution_for_own_data_as_the_report_does(mixed_db, tmp_path):
+    import json
+
+    from prunebench.snippets import CAUTION, CAUTION_OWN_DATA
+
+    manifests = '[{ manifest = "a.toml" }, { manifest = "b.toml" }]'
+    own = _restudied(mixed_db, tmp_path, manifests)
+    text = CliRunner().invoke(main, ["recommend", "--db", own])
+    assert text.exit_code == 0, text.output
+    flat = " ".join(text.output.split())
+    assert CAUTION_OWN_DATA in flat and CAUTION not in flat
+    records = json.loads(CliRunner().invoke(main, ["recommend", "--db", own, "--json"]).output)
+    assert all(r["own_data"] and r["caution"] == "Caution: " + CAUTION_OWN_DATA for r in records)
+    plain = CliRunner().invoke(main, ["recommend", "--db", str(mixed_db), "--json"])
+    bench = json.loads(plain.output)
+    assert all(not r["own_data"] and r["caution"] == "Caution: " + CAUTION for r in bench)
+
+
+def test_recommend_estimator_carries_the_stored_studys_costs(mixed_db, tmp_path):
+    import json
+
+    costs = "\n[costs.breast_cancer]\nloss = { 1 = { 0 = 5 }, 0 = { 1 = 1 } }\n"
+    path = _restudied(mixed_db, tmp_path, '["iris", "wine", "breast_cancer", "diabetes"]', costs)
+    records = json.loads(CliRunner().invoke(main, ["recommend", "--db", path, "--json"]).output)
+    (cls,) = [r for r in records if r["family"] == "classification"]
+    namespace: dict = {}
+    exec(cls["estimator"], namespace)
+    # costs only on breast_cancer: each data set's own, the model taking the first's
+    # rows true, columns predicted: a missed 1 (true 1, predicted 0) costs 5
+    assert namespace["COSTS"]["breast_cancer"] == {"loss_matrix": [[0, 1], [5, 0]]}
+    assert namespace["COSTS"]["iris"] == {}
+    params = namespace["model"].get_params()
+    for name in ("criterion", "min_samples_leaf", "rule", "prune_risk", "select_by"):
+        assert params[name] == cls["config"][name]
+    config = cls["config"]
+    assert (params["max_depth"], params["cv"]) == (config["max_depth"], config["inner_folds"])

@@ -49,3 +49,22 @@ def test_command_line_errors_name_the_option_not_the_library(args, shown, small_
     assert result.exit_code == 2, result.output
     assert result.output.startswith(f"error: {shown}") and result.output.count("\n") == 1
     assert "{" not in result.output  # no per-family dict of margins
+
+
+def test_json_keeps_small_p_values_the_csv_keeps(capsys):
+    import csv
+    import io
+    import json
+
+    import pandas as pd
+
+    from prunebench.cli_options import _emit
+
+    frame = pd.DataFrame({"p": [8.950422389471835e-14, 0.0625], "k": pd.array([5, None], "Int64")})
+    assert _emit(frame, True, False)
+    as_json = json.loads(capsys.readouterr().out)
+    assert _emit(frame, False, True)
+    as_csv = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    assert [r["p"] for r in as_json] == [float(r["p"]) for r in as_csv]
+    assert as_json[0]["p"] == pytest.approx(8.950422389471835e-14, rel=1e-12)
+    assert [r["k"] for r in as_json] == [5, None]

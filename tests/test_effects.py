@@ -321,3 +321,25 @@ def test_default_margins_follow_the_design():
     assert vocabulary.default_margin("mse") == 0.01 and vocabulary.is_relative("mse")
     assert not vocabulary.is_relative("error")
     assert not hasattr(effects, "MARGINS") and not hasattr(effects, "_holm")
+
+
+def test_no_class_weighting_is_spelled_none_as_in_the_study_file():
+    # rule a / b become class weights none / balanced (the study file's spelling)
+    folds = _synthetic()
+    folds["class_weight"] = folds["rule"].map({"a": "none", "b": "balanced"})
+    folds["rule"] = "min"
+    table = effects.factor_effects(folds, {"class_weight": ["none", "balanced"]})
+    weights = table[table["factor"] == "class_weight"]
+    assert set(weights["level"]) == {"balanced"} and set(weights["reference"]) == {"none"}
+    records = [r for r in effects.effect_records(table) if r["factor"] == "class_weight"]
+    assert {(r["level"], r["reference"]) for r in records} == {("balanced", "none")}
+
+
+def test_interactions_spell_no_class_weighting_none():
+    folds = _synthetic()
+    folds["class_weight"] = np.where(folds["fold"] % 2 == 0, "none", "balanced")
+    table = effects.interaction_effects(
+        folds, {"rule": ["a", "b"], "class_weight": ["none", "balanced"]}
+    )
+    within = table[(table["factor"] == "rule") & (table["by"] == "class_weight")]
+    assert set(within["by_level"]) == {"none", "balanced"}

@@ -190,3 +190,33 @@ def test_a_family_with_no_finished_trial_is_left_out_of_the_ranking(folds):
     assert [r["family"] for r in results] == ["classification"]
     whole = ranks.ranking(folds, {"classification": "error", "regression": "mse"})
     assert [r["family"] for r in whole] == ["classification", "regression"]
+
+
+def test_machine_outputs_write_integer_levels_as_integers(db):
+    import csv
+    import io
+
+    # the unpruned trees' missing inner folds and an unlimited depth beside 3 and 4 folds
+    frame = ranks.ranking_frame(ranks.ranking(_folds_of(db)))
+    assert str(frame["inner_folds"].dtype) == "Int64" and str(frame["max_depth"].dtype) == "Int64"
+    assert set(frame["class_weight"]) == {"none"}
+    as_json = json.loads(CliRunner().invoke(main, ["rank", "--db", str(db), "--json"]).output)
+    for row in as_json:
+        for name in ("max_depth", "min_samples_leaf", "inner_folds"):
+            assert row[name] is None or type(row[name]) is int, (name, row[name])
+        assert row["class_weight"] == "none"
+    as_csv = CliRunner().invoke(main, ["rank", "--db", str(db), "--csv"]).output
+    rows = list(csv.DictReader(io.StringIO(as_csv)))
+    assert {r["inner_folds"] for r in rows} <= {"", "3"} and "3" in {r["max_depth"] for r in rows}
+    # and recommend --json says the same as rank
+    out = CliRunner().invoke(main, ["recommend", "--db", str(db), "--json"]).output
+    config = json.loads(out)[0]["config"]
+    assert config["class_weight"] == "none" and type(config["min_samples_leaf"]) is int
+
+
+def _folds_of(db):
+    from prunebench.results import load_folds
+    from prunebench.store import ResultStore
+
+    with ResultStore(db, readonly=True) as store:
+        return load_folds(store)

@@ -45,6 +45,17 @@ def _none(v):
     return None if v is None or pd.isna(v) else (v if isinstance(v, str) else int(v))
 
 
+def _record(config: tuple) -> dict:
+    """A brute-force key as the records write it: no class weighting spelled "none"."""
+    levels = dict(zip(FACTORS, config, strict=True))
+    return {**levels, "class_weight": levels["class_weight"] or "none"}
+
+
+def _key(record: dict) -> tuple:
+    """A record's levels as a brute-force key (no class weighting as None)."""
+    return tuple(None if k == "class_weight" and v == "none" else v for k, v in record.items())
+
+
 def _per_fold_losses(folds):
     """config -> dataset -> [(repeat, fold) sorted] -> (error, leaves, n_train, n_test)."""
     table = defaultdict(lambda: defaultdict(dict))
@@ -120,11 +131,11 @@ def test_recommendation_is_the_fewest_leaves_of_the_acceptable_set(small_folds):
     datasets = sorted(small_folds["dataset"].unique())
     best, upper, acceptable, choice, loss, leaves, _ = _brute_force(table, datasets)
     assert r["n_configurations"] == len(loss) == 16 + 4  # 16 pruned, 4 distinct unpruned trees
-    assert r["best"]["config"] == dict(zip(FACTORS, best, strict=True))
-    assert r["config"] == dict(zip(FACTORS, choice, strict=True))
+    assert r["best"]["config"] == _record(best)
+    assert r["config"] == _record(choice)
     assert r["mean_loss"] == pytest.approx(loss[choice], rel=1e-12)
     assert r["mean_leaves"] == pytest.approx(leaves[choice], rel=1e-12)
-    got = {tuple(a["config"].values()): a for a in r["acceptable"]}
+    got = {_key(a["config"]): a for a in r["acceptable"]}
     assert set(got) == set(acceptable)
     for c, a in got.items():
         assert a["upper_bound"] == pytest.approx(upper[c], rel=1e-9, abs=1e-12)
@@ -223,6 +234,46 @@ def test_stability_by_hand():
     # single-leaf trees: no root feature, empty sets agree
     assert (b["root_feature"], b["root_share"], b["jaccard"]) == ("", 1.0, 1.0)
     assert recommend.stability(frame.drop(columns="root_feature"), config) is None
+
+
+def test_records_spell_levels_as_the_study_file_and_rank_do(small_folds):
+    r = recommend.recommend(small_folds)[0]
+    # no class weighting is "none" (as in the study file and in rank), integers are ints
+    for c in [r["config"], r["best"]["config"], *(a["config"] for a in r["acceptable"])]:
+        assert c["class_weight"] == "none"
+        assert all(
+            isinstance(c[f], int) for f in ("min_samples_leaf", "inner_folds") if c[f] is not None
+        )
+
+
+def test_labels_name_the_loss_and_the_class_weight_off_their_defaults():
+    base = ("gini", None, 1, 5, "1se", "cost", "error", "none")
+    assert recommend.config_label(base) == "gini depth=none leaf=1 k=5 1se cost"
+    other = recommend.config_label((*base[:6], "auc", "balanced"))
+    assert other == "gini depth=none leaf=1 class_weight=balanced k=5 1se cost select_by=auc"
+    labels = {
+        recommend.config_label((*base[:6], s, w))
+        for s in ("error", "cost", "brier", "log_loss", "auc", "average_precision")
+        for w in ("none", "balanced")
+    }
+    assert len(labels) == 12
+
+
+def test_a_single_leaf_tree_has_no_root_feature_not_na():
+    # the store's NULL root arrives as pandas' NA in a nullable integer column
+    config = ("gini", None, 1, 5, "1se", "error", "error", None)
+    frame = pd.DataFrame(
+        {
+            "dataset": ["a"] * 3,
+            "config": [config] * 3,
+            "root_feature": pd.array([None, None, 3], dtype="Int64"),
+            "features_used": ["", "", "3"],
+            "n_leaves": [1, 1, 2],
+            "alpha": [0.5, 0.5, 0.0],
+        }
+    )
+    (row,) = recommend.stability(frame, config).to_dict("records")
+    assert (row["root_feature"], row["root_share"]) == ("", pytest.approx(2 / 3))
 
 
 def test_recommend_reports_stability_when_the_folds_have_it(small_folds):

@@ -151,3 +151,28 @@ def test_loss_matrix_and_priors_come_in_the_given_class_order():
         _loss_matrix(check, "costs", {"bad": {"good": 5}}, ["bad", "good"], "d")
     # the line of the table's loss, for the missing cell
     assert str(err.value).startswith("c.toml:2: key 'costs.loss.good.bad': is missing")
+
+
+def test_costs_read_back_from_the_stored_text_are_the_ones_the_trials_used():
+    from prunebench.study_costs import costs_of_text, smoothing_of_text
+
+    text = _costs(
+        f'smoothing = "m2"\n[costs]\n{KEEL_LOSS}\npriors = {{ negative = 0.8, positive = 0.2 }}'
+        f'\n[costs.rare_logistic]\n{SIM_LOSS}\npriors = "equal"'
+    )
+    study = parse_study(text)
+    read = costs_of_text(text, ["yeast4", "rare_logistic"])
+    for name, (labels, loss, priors) in study.costs.items():
+        assert read[name]["classes"] == [str(c) for c in labels]
+        assert (read[name]["loss_matrix"], read[name]["priors"]) == (loss, priors)
+    assert smoothing_of_text(text) == "m2" and smoothing_of_text(_costs("")) is None
+    # a data set without costs of its own, in a study without common ones, has none
+    only = costs_of_text(_costs(f"[costs.rare_logistic]\n{SIM_LOSS}"), ["yeast4", "rare_logistic"])
+    assert set(only) == {"rare_logistic"}
+
+
+def test_class_names_sort_as_the_labels_do():
+    from prunebench.study_costs import _label_order
+
+    assert _label_order(["10", "2", "1"]) == ["1", "2", "10"]
+    assert _label_order(["positive", "negative"]) == ["negative", "positive"]

@@ -184,3 +184,42 @@ def test_compare_text_puts_the_verdict_first_and_writes_labels_out(mixed_folds):
     # the configuration follows its numbers, written out in full (wrapped, never cut)
     assert lines[first + 1].strip() == long_label(table.iloc[0])
     assert all(len(line) <= WIDTH for line in lines if line.startswith("       "))
+
+
+def _weighted_folds():
+    """Folds of 6 configurations that differ only in select_by and class_weight, 4 data sets."""
+    import numpy as np
+
+    rng = np.random.default_rng(0)
+    rows = []
+    levels = [(s, w) for s in ("error", "brier", "average_precision") for w in ("none", "balanced")]
+    for d in range(4):
+        for c, (select_by, weight) in enumerate(levels):
+            for fold in range(4):
+                for arm in ("pruned", "unpruned"):
+                    rows.append(
+                        {"dataset": f"d{d}", "task": "binary", "trial_id": f"d{d}-c{c}",
+                         "criterion": "gini", "max_depth": None, "min_samples_leaf": 1,
+                         "inner_folds": 5, "rule": "1se", "prune_risk": "cost",
+                         "select_by": select_by, "class_weight": weight, "repeat": 0,
+                         "fold": fold, "arm": arm, "n_train": 75, "n_test": 25,
+                         "error": rng.uniform(0.1, 0.3), "n_leaves": 5 if arm == "pruned" else 9}
+                    )  # fmt: skip
+    frame = pd.DataFrame(rows)
+    frame["max_depth"] = frame["max_depth"].astype("Int64")
+    return frame
+
+
+def test_rank_text_never_cuts_a_label():
+    from prunebench.ranks import ranking
+    from prunebench.text import rank_text
+    from prunebench.vocabulary import Configuration
+
+    (res,) = ranking(_weighted_folds())
+    text = rank_text([res], 0.05)
+    labels = [Configuration.of(c).label() for c in res["table"]["config"]]
+    assert len(set(labels)) == len(labels) == 8  # 6 pruned, 2 unpruned trees
+    lines = text.splitlines()
+    for label in labels:  # every label whole, at the start of its own line
+        assert any(line == label or line.startswith(label + " ") for line in lines), label
+    assert max(len(line) for line in lines) <= 100

@@ -25,3 +25,46 @@ def test_effects_text_shows_the_ratio_both_intervals_and_the_verdict():
     assert "×0.63 [0.55, 0.72]" in row and row.split()[-2:] == ["undecided", "smaller"]
     assert "across 5 data sets; margin ±0.01" in text
     assert max(len(line) for line in text.splitlines()) <= 100
+
+
+def _rec(**more) -> dict:
+    config = {"criterion": "gini", "max_depth": None, "min_samples_leaf": 1, "inner_folds": 5,
+              "rule": "1se", "prune_risk": "cost", "select_by": "average_precision",
+              "class_weight": "balanced"}  # fmt: skip
+    accept = [{"config": {**config, "select_by": s}, "mean_loss": 0.1, "mean_leaves": 4.0,
+               "upper_bound": 0.0} for s in ("auc", "average_precision")]  # fmt: skip
+    return {
+        "family": "classification", "decided": True, "metric": "expected_cost",
+        "margin": 0.02, "alpha": 0.05, "config": config, "label": "l", "mean_loss": 0.1,
+        "mean_leaves": 4.0, "best": {"label": "l", "mean_loss": 0.1, "mean_leaves": 4.0},
+        "acceptable": accept, "n_configurations": 2, "datasets": ["a", "b"],
+        "held_out": None, "trials": None,
+        "stability": [{"dataset": "a", "n_folds": 4, "root_feature": "", "root_share": 1.0,
+                       "jaccard": 1.0, "leaves_p10": 1, "leaves_p90": 1, "alpha_p10": 0.1,
+                       "alpha_p90": 0.2}],
+        **more,
+    }  # fmt: skip
+
+
+def test_recommend_text_names_every_acceptable_configuration_whole():
+    from prunebench.snippets import CAUTION
+    from prunebench.text_decision import recommend_text
+    from prunebench.vocabulary import config_label
+
+    text = recommend_text([_rec()])
+    for a in _rec()["acceptable"]:
+        assert f"   {config_label(a['config'])} " in text  # by=auc and by=ap, not by=a
+    assert "by=auc" in text and "by=ap" in text
+    # a single-leaf tree's root reads "leaf", explained under the table
+    (row,) = [line for line in text.splitlines() if line.startswith("   a  ")]
+    assert row.split()[2] == "leaf" and "leaf: most folds' trees are a single" in text
+    assert " ".join(CAUTION.split()) in " ".join(text.split())
+    assert max(len(line) for line in text.splitlines()) <= 100
+
+
+def test_recommend_text_words_the_caution_for_own_data():
+    from prunebench.snippets import CAUTION, CAUTION_OWN_DATA
+    from prunebench.text_decision import recommend_text
+
+    flat = " ".join(recommend_text([_rec(own_data=True)]).split())
+    assert " ".join(CAUTION_OWN_DATA.split()) in flat and CAUTION not in flat

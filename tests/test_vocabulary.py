@@ -202,3 +202,44 @@ def test_select_by_levels_are_the_scoring_engines_and_defaults_compare_equal():
     assert new.label() == "gini d=4 l=1 cw=bal k=10 min cost by=auc"
     assert new.unpruned() == Configuration("gini", 4, 1, None, "unpruned", None, None, "balanced")
     assert new.unpruned().label() == "gini d=4 l=1 cw=bal unpruned"
+
+
+def test_labels_of_configurations_that_differ_in_any_level_differ():
+    levels = [
+        Configuration("gini", None, 1, 5, rule, "cost", select_by, weight)
+        for rule in ("min", "1se")
+        for select_by in vocabulary.SELECT_BY[CLASSIFICATION]
+        for weight in vocabulary.CLASS_WEIGHTS[CLASSIFICATION]
+    ]
+    for named in (False, True):
+        assert len({c.label(named=named) for c in levels}) == len(levels)
+    c = Configuration("entropy", 4, 5, 10, "1se", "error", "average_precision", "balanced")
+    assert c.label() == "entr d=4 l=5 cw=bal k=10 1se err by=ap"
+    assert c.label(named=True) == (
+        "entropy depth=4 leaf=5 class_weight=balanced k=10 1se error select_by=average_precision"
+    )
+    assert c.shows("select_by") and not Configuration.of(c.key()[:6]).shows("select_by")
+
+
+def test_machine_outputs_spell_each_level_one_way():
+    from prunebench.vocabulary import integer_factors, spelled_level
+
+    assert integer_factors() == ["max_depth", "min_samples_leaf", "inner_folds"]
+    assert spelled_level("inner_folds", 5.0) == 5
+    assert isinstance(spelled_level("max_depth", 4.0), int)
+    assert spelled_level("max_depth", float("nan")) is None
+    assert spelled_level("max_depth", "none") is None
+    for missing in (None, "none", float("nan"), pd.NA):
+        assert spelled_level("class_weight", missing) == "none"
+    assert spelled_level("class_weight", "balanced") == "balanced"
+    record = Configuration("gini", 4.0, 1.0, None, "unpruned", None, None, None).record()
+    assert record == {
+        "criterion": "gini",
+        "max_depth": 4,
+        "min_samples_leaf": 1,
+        "inner_folds": None,
+        "rule": "unpruned",
+        "prune_risk": None,
+        "select_by": None,
+        "class_weight": "none",
+    }
