@@ -33,11 +33,17 @@ WIDTH = 100
 
 
 def _fmt(value, spec: str) -> str:
+    """``value`` formatted by ``spec``; "-" when missing; a zero never signed ("-0.000")."""
     import pandas as pd
 
     if value is None or pd.isna(value):
         return "-"
-    return format(value, spec)
+    text = format(value, spec)
+    bare = text.strip()
+    if bare[:1] in ("+", "-") and bare.lstrip("+-").strip("0.,") == "":
+        # a rounded zero: keep the width, drop the sign
+        text = text.replace(bare[0], " ", 1) if text != bare else bare[1:]
+    return text
 
 
 def _number_spec(scale: float) -> str:

@@ -223,3 +223,13 @@ def test_rank_text_never_cuts_a_label():
     for label in labels:  # every label whole, at the start of its own line
         assert any(line == label or line.startswith(label + " ") for line in lines), label
     assert max(len(line) for line in lines) <= 100
+
+
+def test_a_rounded_zero_is_never_signed_and_keeps_its_width():
+    from prunebench.text import _fmt
+
+    assert _fmt(-0.0001, "+.3f") == "0.000"  # was "-0.000"
+    assert _fmt(0.0001, "+.3f") == "0.000"
+    assert _fmt(-0.0001, "8.3f") == "   0.000"
+    assert _fmt(-0.002, "+.3f") == "-0.002" and _fmt(0.5, "+.3f") == "+0.500"
+    assert _fmt(None, "+.3f") == "-"
