@@ -506,7 +506,8 @@ def export(database, out, fmt, overwrite) -> None:
     "--watch",
     default=0.0,
     show_default=True,
-    help="Refresh every this many seconds until no trial is pending (0: once).",
+    help="Refresh every this many seconds until no trial is pending and no conduct "
+    "writes to the database (0: once).",
 )
 @_reports_errors
 def progress(database, study, watch) -> None:
@@ -525,7 +526,9 @@ def progress(database, study, watch) -> None:
     while True:
         r = progress_report(database, study)
         click.echo(progress_text(r))
-        if watch <= 0 or r["pending"] == 0:
+        # a search records trials as it reaches them: none pending between two batches
+        # does not mean it has ended, while its conduct still holds the database
+        if watch <= 0 or (r["pending"] == 0 and not r["writing"]):
             return
         time.sleep(watch)
 

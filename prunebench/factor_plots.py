@@ -17,6 +17,7 @@ from .vocabulary import counted, higher_is_better
 
 __all__ = [
     "MAX_CD_CONFIGS",
+    "MAX_HEAT_LEVELS",
     "contrast_name",
     "critical_difference_diagram",
     "factor_effects_figure",
@@ -30,19 +31,32 @@ _HEAT_PAIRS = [
 ]
 
 
-def factor_heatmaps(table: pd.DataFrame) -> Figure:
+#: a heatmap panel is left out when one of its factors has more levels than this (a
+#: search's leaf sizes and k-SE rules are drawn from ranges: a level per configuration)
+MAX_HEAT_LEVELS = 12
+
+
+def factor_heatmaps(table: pd.DataFrame) -> Figure | None:
     """Mean pruned − unpruned difference over pairs of factors, significance marked.
 
     Panels: criterion × depth cap, leaf size × depth cap, rule × inner folds. Each
     cell is the mean difference over data sets and the other factors; its note counts
     the rows (data set × configuration) where pruning was significantly better (▼) or
-    worse (▲) after Holm's adjustment. The colour scale is symmetric around 0 and
-    fitted to the cells; its legend says which colour means pruning hurts.
+    worse (▲) after Holm's adjustment. A pair of levels no configuration has (a
+    search's configurations do not cross every level) is a blank cell. A panel whose
+    factor has more than :data:`MAX_HEAT_LEVELS` levels is left out, and the title says
+    so. The colour scale is symmetric around 0 and fitted to the cells; its legend says
+    which colour means pruning hurts.
 
     Parameters
     ----------
     table : DataFrame
         From :func:`prunebench.stats.comparison` (one metric, one task family).
+
+    Returns
+    -------
+    Figure or None
+        None when no panel can be drawn.
     """
     metric = table["metric"].iloc[0]
     table = table.assign(
@@ -51,17 +65,29 @@ def factor_heatmaps(table: pd.DataFrame) -> Figure:
         hurts=table["verdict"] == "unpruned better",
     )
     sign = -1.0 if higher_is_better(metric) else 1.0  # > 0 after sign: pruning hurts
-    grids = []
+    grids, left_out = [], []
     for rows, cols, title in _HEAT_PAIRS:
+        many = [f for f in (rows, cols) if table[f].nunique(dropna=False) > MAX_HEAT_LEVELS]
+        if many:
+            counts = " and ".join(
+                f"{table[f].nunique(dropna=False)} levels of {_FACTOR_WORDS.get(f, f)}"
+                for f in many
+            )
+            left_out.append(f"{title} left out ({counts})")
+            continue
         grid = table.pivot_table(index=rows, columns=cols, values="diff", aggfunc="mean")
+        # a pair of levels with no row is NaN: a blank cell, counted as none
         helps = table.pivot_table(index=rows, columns=cols, values="helps", aggfunc="sum")
         hurts = table.pivot_table(index=rows, columns=cols, values="hurts", aggfunc="sum")
+        helps, hurts = (c.reindex_like(grid).fillna(0) for c in (helps, hurts))
         grids.append((grid, helps, hurts, rows, cols, title))
+    if not grids:
+        return None
     values = np.concatenate([g[0].to_numpy(float).ravel() for g in grids])
     span = float(np.nanmax(np.abs(values))) if np.isfinite(values).any() else 0.0
     span = span or 1.0
     fig = _figure(figsize=(14, 4.4), layout="constrained")
-    axes = fig.subplots(1, len(grids))
+    axes = np.atleast_1d(fig.subplots(1, len(grids)))
     for ax, (grid, helps, hurts, rows, cols, title) in zip(axes, grids, strict=True):
         notes = np.empty(grid.shape, dtype=object)
         for i in range(grid.shape[0]):
@@ -87,12 +113,20 @@ def factor_heatmaps(table: pd.DataFrame) -> Figure:
     mappable = axes[0].collections[0]
     bar = fig.colorbar(mappable, ax=list(axes), shrink=0.9, pad=0.01)
     bar.set_label(f"pruned − unpruned {metric}\nred: pruning hurts · blue: pruning helps")
+    notes = "".join(f"\n{note}" for note in left_out)
     fig.suptitle(
         f"Where pruning changes {metric} (cell: mean over data sets and other factors; "
-        "▼ rows where pruning is significantly better, ▲ worse, Holm-adjusted)",
+        f"▼ rows where pruning is significantly better, ▲ worse, Holm-adjusted){notes}",
         fontsize=11,
     )
     return fig
+
+
+_FACTOR_WORDS = {
+    "min_samples_leaf": "leaf size",
+    "depth": "depth cap",
+    "inner_folds": "inner folds",
+}
 
 
 def _signed(value: float, metric: str) -> str:

@@ -8,6 +8,7 @@ figures); :func:`write_figures` saves them all.
 
 from __future__ import annotations
 
+import contextlib
 import tomllib
 from pathlib import Path
 
@@ -31,7 +32,7 @@ from .factor_plots import (
 )
 from .ranks import ranking
 from .recommend import recommend
-from .results import resolve_study, trial_curves
+from .results import resolve_study, seen_levels, trial_curves
 from .snippets import long_label, own_data, with_study
 from .stats import comparison
 from .store import ResultStore
@@ -135,7 +136,9 @@ def build_figures(
     out["pruning_curves"] = pruning_curves(curves, curves.attrs.get("context", ""))
     out["size_against_error"] = size_against_error(rows, family=family, recommended=recommended)
     out["difference_by_dataset"] = difference_by_dataset(table, configs)
-    out["factor_heatmaps"] = factor_heatmaps(table)
+    heatmaps = factor_heatmaps(table)
+    if heatmaps is not None:  # None: every panel has too many levels (a search's ranges)
+        out["factor_heatmaps"] = heatmaps
     if len(ranked["table"]) <= MAX_CD_CONFIGS:
         out["critical_difference"] = critical_difference_diagram(ranked)
     out["alpha_by_rule"] = alpha_by_rule(rows)
@@ -241,15 +244,27 @@ def write_figures(
         The files written.
     """
     out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
+    # every figure is drawn before the folder is made, and a failure while saving removes
+    # what this call wrote (and the folder it made): a failed call leaves nothing behind
     decided = decision_inputs(store, folds, study)
+    drawn = family_figures(store, folds, decided)
+    made = [p for p in (out, *out.parents) if not p.exists()]
     written = []
-    for family, figs in family_figures(store, folds, decided).items():
-        for name, fig in figs.items():
-            for ext in ("png", "svg"):
-                path = out / f"{family}_{name}.{ext}"
-                fig.savefig(path, dpi=110 if ext == "png" else None)
-                written.append(path)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        for family, figs in drawn.items():
+            for name, fig in figs.items():
+                for ext in ("png", "svg"):
+                    path = out / f"{family}_{name}.{ext}"
+                    written.append(path)
+                    fig.savefig(path, dpi=110 if ext == "png" else None)
+    except BaseException:
+        for path in written:
+            path.unlink(missing_ok=True)
+        for folder in made:  # deepest first
+            with contextlib.suppress(OSError):
+                folder.rmdir()
+        raise
     return written
 
 
@@ -289,8 +304,9 @@ def study_levels(study_text: str, folds: pd.DataFrame) -> dict:
     """Family -> factor -> levels in the study file's order (the first is the reference).
 
     Read from the stored study text's ``[factors]`` section (a family's own table
-    overrides the shared one); a factor the file does not name has the one level the
-    folds hold.
+    overrides the shared one); a factor the file does not name has the levels the folds
+    hold (:func:`prunebench.results.seen_levels`: one in a sweep, the smallest first in
+    a search).
 
     Parameters
     ----------
@@ -315,8 +331,7 @@ def study_levels(study_text: str, folds: pd.DataFrame) -> dict:
             if isinstance(listed, list) and listed:
                 levels[factor] = listed
             else:
-                seen = [None if pd.isna(v) else v for v in rows[factor].astype(object)]
-                levels[factor] = list(dict.fromkeys(seen))
+                levels[factor] = seen_levels(rows[factor])
         out[family] = levels
     return out
 

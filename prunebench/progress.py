@@ -7,8 +7,10 @@ short duration both it and the conduct's progress line print.
 from __future__ import annotations
 
 import datetime as _dt
+import tomllib
 from pathlib import Path
 
+from .lockfile import writer_active
 from .results import resolve_study
 from .store import ResultStore
 
@@ -31,11 +33,20 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
     dict
         ``study``, ``done``, ``failed``, ``pending``, ``total``, ``rate_per_minute``
         (trials finished per minute over the run so far), ``eta_seconds``,
-        ``eta`` (as text), ``last_finished`` and ``errors`` (the last lines of the latest
-        tracebacks).
+        ``eta`` (as text), ``last_finished``, ``errors`` (the last lines of the latest
+        tracebacks), ``search`` (whether the study is a search) and ``writing`` (whether
+        a ``conduct`` holds the database now).
+
+    Notes
+    -----
+    A search records a configuration's trials only as it reaches them (see
+    :mod:`prunebench.search`), so while it runs ``total`` is the trials so far and
+    ``pending`` at most a batch; how many remain depends on the sampler and on early
+    stopping, so its ETA is unknown (``None``) until it has ended.
     """
     with ResultStore(path, readonly=True) as store:
         chosen = resolve_study(store, study)
+        writing = writer_active(store.path)
         sid = chosen["study_id"]
         counts = {
             r["status"]: r["n"]
@@ -62,6 +73,9 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
         if span > 0:
             rate = (done + failed) / span * 60
             eta = pending / (rate / 60) if pending else 0.0
+    search = "search" in tomllib.loads(chosen["study_text"])
+    if search and writing:
+        eta = None
     return {
         "study": chosen["name"],
         "done": done,
@@ -73,4 +87,6 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
         "eta": "-" if eta is None else duration_text(eta),
         "last_finished": times["last"],
         "errors": [e["error"].strip().splitlines()[-1] for e in errors if e["error"]],
+        "search": search,
+        "writing": writing,
     }

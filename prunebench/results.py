@@ -43,6 +43,7 @@ __all__ = [
     "pruned_losses",
     "resolve_study",
     "results_path",
+    "seen_levels",
     "study_levels",
     "study_overview",
     "trial_counts",
@@ -285,6 +286,26 @@ def study_levels(store: ResultStore, study: str | None = None) -> dict:
 
     row = resolve_study(store, study)
     return {f: levels_of_text(row["study_text"], f) for f in _families_of(store, row["study_id"])}
+
+
+def seen_levels(values: pd.Series) -> list:
+    """The levels a factor's column holds, smallest first and ``None`` (no cap) last.
+
+    The reference levels of a factor the study file does not list, as in a search,
+    whose configurations come from ranges: the effects table, the figures and the
+    report take the same ones.
+
+    Parameters
+    ----------
+    values : Series
+        One factor's column of :func:`load_folds`, for one task family.
+
+    Returns
+    -------
+    list
+    """
+    levels = sorted(values.dropna().unique().tolist())
+    return levels + [None] if values.isna().any() else levels
 
 
 def arm_means(store: ResultStore, study_id: str) -> pd.DataFrame:

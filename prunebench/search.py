@@ -21,13 +21,20 @@ errors of the data sets (normal approximation).
 sets) the running mean is reported to Optuna; a median pruner stops a
 configuration that is clearly worse than the earlier ones.  The interface calls
 this *early stopping* so it is not confused with tree pruning; its trials on the
-data sets already evaluated stay in the database.
+data sets already evaluated stay in the database, and the data sets it did not
+reach are never recorded: a configuration's trials are registered batch by
+batch, as they are about to run, so a search that has ended leaves no trial
+``pending``.
 
 **Resuming.**  Optuna keeps its own SQLite storage in a separate file beside the
 results database (``RESULTS.sqlite.optuna``), never in the results file.  After
 a kill, the configuration that was running is proposed again first, and its
 data sets that finished before the kill are skipped (the results database has
-them), so no finished configuration is evaluated twice.
+them), so no finished configuration is evaluated twice.  The trials the kill
+left ``pending`` are removed when the search resumes (the configuration registers
+them again as it reaches them), and Optuna's record of the interrupted
+configuration (which it can only end as failed) is marked :data:`INTERRUPTED`
+and not counted as a failure.
 """
 
 from __future__ import annotations
@@ -42,7 +49,11 @@ from .results import pruned_losses
 from .stats import corrected_ttest
 from .vocabulary import CLASSIFICATION, FACTORS, family_of
 
-__all__ = ["relative_losses", "run_search", "search_storage_path"]
+__all__ = ["INTERRUPTED", "relative_losses", "run_search", "search_storage_path"]
+
+#: the user attribute that marks an Optuna trial a kill or Ctrl-C interrupted (ended as
+#: FAIL on resume, proposed again, and not counted as a failed configuration)
+INTERRUPTED = "interrupted"
 
 
 def search_storage_path(database: str | Path) -> Path:
@@ -120,7 +131,8 @@ def run_search(study, store, runner, database: str | Path) -> dict:
     Returns
     -------
     dict
-        ``configurations`` (finished), ``stopped_early``, ``failed``, ``best`` (levels),
+        ``configurations`` (finished), ``stopped_early``, ``failed`` (configurations a
+        trial group failed in; not one a kill or Ctrl-C interrupted), ``best`` (levels),
         ``best_value`` with ``ci_low``/``ci_high``, and ``storage``.
     """
     import optuna
@@ -129,6 +141,11 @@ def run_search(study, store, runner, database: str | Path) -> dict:
     storage_path = search_storage_path(database)
     storage = optuna.storages.RDBStorage(f"sqlite:///{storage_path}")
     search, budget = _optuna_study(study, storage)
+    # a kill leaves the trials of the data sets the running configuration had not finished
+    # as pending (and earlier versions registered every data set of a configuration that
+    # early stopping then ended): none of them is owed, the re-proposed configuration
+    # registers its own again as it runs them
+    store.remove_pending(study.study_id)
     states = optuna.trial.TrialState
     ended = (states.COMPLETE, states.PRUNED)
     while len(search.get_trials(deepcopy=False, states=ended)) < budget:
@@ -139,10 +156,11 @@ def run_search(study, store, runner, database: str | Path) -> dict:
             search.tell(trial, value)
             continue
         search.tell(trial, state=state)
+        failures = [t for t in search.trials if not t.user_attrs.get(INTERRUPTED)]
         if (
             state == states.FAIL
-            and len(search.trials) >= 3
-            and all(t.state == states.FAIL for t in search.trials[-3:])
+            and len(failures) >= 3
+            and all(t.state == states.FAIL for t in failures[-3:])
         ):
             break  # three failures in a row: something is wrong beyond one configuration
     return _search_summary(study, search, storage_path)
@@ -185,8 +203,10 @@ def _optuna_study(study, storage):
             search.enqueue_trial(dict(zip(grid, points[i], strict=True)))
     running = optuna.trial.TrialState.RUNNING
     for stale in search.get_trials(deepcopy=False, states=(running,)):
-        # a kill interrupted it: propose the same configuration again, first
+        # a kill interrupted it: propose the same configuration again, first.  Optuna can
+        # only end it as FAIL; the mark keeps it out of the failures the summary counts
         search.enqueue_trial(stale.params, skip_if_exists=False)
+        storage.set_trial_user_attr(stale._trial_id, INTERRUPTED, True)
         storage.set_trial_state_values(stale._trial_id, optuna.trial.TrialState.FAIL)
     return search, budget
 
@@ -205,13 +225,16 @@ def _evaluate_configuration(study, store, runner, trial) -> tuple:
     states = optuna.trial.TrialState
     levels = _complete_levels(study, _suggest(trial, study.search.space))
     groups = [study.trial_group(key, levels) for key in study.datasets]
-    store.add_trials(study, [t for g in groups for t in g.trials])
     statuses = store.statuses(study.study_id)
     batch = max(runner.workers, 1)
     scores = []
     for start in range(0, len(groups), batch):
         chunk = groups[start : start + batch]
-        outcomes = runner.run([g for g in chunk if statuses[g.trials[0].trial_id] != "done"])
+        todo = [g for g in chunk if statuses.get(g.trials[0].trial_id) != "done"]
+        # registered only as they are about to run: the data sets early stopping skips
+        # are never recorded, so nothing stays pending once the search has ended
+        store.add_trials(study, [t for g in todo for t in g.trials])
+        outcomes = runner.run(todo)
         if any(o.error is not None for o in outcomes):
             return states.FAIL, None, None
         scores += [relative_losses(store, study, g.trials[0].trial_id) for g in chunk]
@@ -235,7 +258,10 @@ def _search_summary(study, search, storage_path: Path) -> dict:
     result = {
         "configurations": count(states.COMPLETE, states.PRUNED),
         "stopped_early": count(states.PRUNED),
-        "failed": count(states.FAIL),
+        "failed": sum(
+            not t.user_attrs.get(INTERRUPTED)
+            for t in search.get_trials(deepcopy=False, states=(states.FAIL,))
+        ),
         "storage": str(storage_path),
     }
     complete = search.get_trials(deepcopy=False, states=(states.COMPLETE,))

@@ -392,6 +392,38 @@ class ResultStore:
         except sqlite3.Error as err:
             raise _explain(self.path, err) from None
 
+    def remove_pending(self, study_id: str) -> int:
+        """Remove a study's ``pending`` trials, and the growth settings left without trials.
+
+        A search registers a configuration's trials only as they are about to run;
+        the ones a kill left pending are not owed (see :mod:`prunebench.search`).  A
+        pending trial has no stored rows, so nothing else refers to it.
+
+        Parameters
+        ----------
+        study_id : str
+
+        Returns
+        -------
+        int
+            How many trials were removed.
+        """
+        try:
+            with self._transaction():
+                removed = self.db.conn.execute(
+                    "DELETE FROM trials WHERE study_id = ? AND status = 'pending'", [study_id]
+                ).rowcount
+                self.db.conn.execute(
+                    "DELETE FROM growths WHERE study_id = ? AND NOT EXISTS "
+                    "(SELECT 1 FROM trials t WHERE t.growth_id = growths.growth_id) "
+                    "AND NOT EXISTS "
+                    "(SELECT 1 FROM unpruned_folds u WHERE u.growth_id = growths.growth_id)",
+                    [study_id],
+                )
+        except sqlite3.Error as err:
+            raise _explain(self.path, err) from None
+        return removed
+
     def _insert_trials(self, study, trials) -> None:
         trials = list(trials)
         growth = self._growth_ids(study, trials)

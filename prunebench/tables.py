@@ -18,7 +18,7 @@ import pandas as pd
 
 from .exceptions import QueryError, parameter_error
 from .query import fetch
-from .results import decision_settings, load_folds, study_levels, trial_counts
+from .results import decision_settings, load_folds, seen_levels, study_levels, trial_counts
 from .store import ResultStore
 from .vocabulary import FAMILIES, factor_names, family_of
 
@@ -175,10 +175,7 @@ class Results:
         for family, own in levels.items():
             if not own:  # a search names no levels: the reference is the smallest level seen
                 mine = folds[folds["task"].map(family_of) == family]
-                levels[family] = {
-                    f: sorted(mine[f].dropna().unique().tolist()) + ([None] * mine[f].isna().any())
-                    for f in factor_names()
-                }
+                levels[family] = {f: seen_levels(mine[f]) for f in factor_names()}
         compute = interaction_effects if interactions else factor_effects
         return compute(folds, levels, settings["metric"], settings["margin"], settings["alpha"])
 

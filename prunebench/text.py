@@ -277,6 +277,8 @@ def progress_text(report: dict) -> str:
         f"{report['pending']} pending of {counted(report['total'], 'trial')}; {rate} trials/min; "
         f"ETA {report['eta']}; last finished {report['last_finished'] or '-'}"
     ]
+    if report.get("search") and report.get("writing"):
+        lines.append("  a search: trials are recorded as its configurations reach them")
     lines += [f"  recent failure: {error}" for error in report["errors"]]
     return "\n".join(lines)
 

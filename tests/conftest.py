@@ -71,6 +71,37 @@ def mixed_folds(mixed_db):
         return load_folds(store)
 
 
+SEARCH_STUDY = """\
+name = "search-fixture"
+seed = 4
+datasets = ["iris", "wine", "breast_cancer"]
+[outer]
+repeats = 1
+folds = 3
+[search]
+sampler = "random"
+configurations = 8
+[search.space]
+criterion = ["gini", "entropy"]
+max_depth = ["none", 2, 4]
+min_samples_leaf = { low = 1, high = 20 }
+se = { low = 0.0, high = 2.0 }
+inner_folds = [3]
+"""
+
+
+@pytest.fixture(scope="session")
+def search_db(tmp_path_factory):
+    """A results database of a search: 8 random configurations on 3 data sets.
+
+    Its leaf sizes and k-SE rules come from ranges (a level per configuration), and its
+    configurations do not cross every pair of levels.
+    """
+    path = tmp_path_factory.mktemp("search") / "search.sqlite"
+    conduct(parse_study(SEARCH_STUDY), path, progress=Progress(0, io.StringIO()))
+    return path
+
+
 @pytest.fixture(autouse=True)
 def _registry_restored():
     """Data sets a test registers (from its own manifests) do not outlive that test."""

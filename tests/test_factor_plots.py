@@ -83,3 +83,32 @@ def test_factor_effects_figure_one_row_per_contrast_with_the_margin_band(folds):
     ratios = [t.get_text() for t in right.texts]
     sizes = effects[effects["metric"] == "n_leaves"]
     assert ratios == [f"×{r:.2f}" for r in sizes["ratio"]]
+
+
+@pytest.fixture(scope="module")
+def search_table(search_db):
+    with ResultStore(search_db, readonly=True) as store:
+        table = stats.comparison(results.load_folds(store))
+    return table[table["metric"] == "error"]
+
+
+def test_heatmaps_of_a_search_leave_pairs_no_configuration_has_blank(search_table):
+    # 8 random configurations: most pairs of a leaf size and a depth cap have no row
+    fig = factor_plots.factor_heatmaps(search_table)
+    heat = [ax for ax in fig.axes if ax.get_title()]
+    assert [ax.get_title() for ax in heat][:2] == ["criterion × depth cap", "leaf size × depth cap"]
+    leaf = heat[1]
+    pairs = search_table[["min_samples_leaf", "max_depth"]].drop_duplicates()
+    assert len(leaf.texts) == len(pairs)  # a note in every filled cell, none in a blank one
+
+
+def test_heatmaps_leave_out_a_panel_with_too_many_levels(search_table, monkeypatch):
+    leaves = search_table["min_samples_leaf"].nunique()
+    monkeypatch.setattr(factor_plots, "MAX_HEAT_LEVELS", leaves - 1)
+    fig = factor_plots.factor_heatmaps(search_table)
+    titles = [ax.get_title() for ax in fig.axes if ax.get_title()]
+    assert titles == ["criterion × depth cap"]  # leaf sizes and rules: one per configuration
+    note = f"leaf size × depth cap left out ({leaves} levels of leaf size)"
+    assert note in fig._suptitle.get_text()
+    monkeypatch.setattr(factor_plots, "MAX_HEAT_LEVELS", 1)
+    assert factor_plots.factor_heatmaps(search_table) is None  # nothing left to draw

@@ -43,3 +43,46 @@ def test_above_the_limit_the_factor_figure_replaces_the_cd_diagram(data, monkeyp
     monkeypatch.setattr(plots, "MAX_CD_CONFIGS", len(ranked["table"]) - 1)
     fewer = plots.build_figures(folds, curves, ranked, effects=effects)
     assert "critical_difference" not in fewer and "factor_effects" in fewer
+
+
+def test_figures_of_a_search(search_db, tmp_path):
+    # a search's configurations do not cross every level, and its leaf sizes and rules
+    # come from ranges: the heatmaps leave blank cells and too-many-level panels out
+    out = tmp_path / "figs"
+    result = CliRunner().invoke(main, ["figures", "--db", str(search_db), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    names = {p.name for p in out.iterdir()}
+    assert {"classification_factor_heatmaps.png", "classification_pruning_curves.svg"} <= names
+
+
+@pytest.mark.parametrize("fails", ["drawing", "saving"])
+def test_figures_that_fail_leave_nothing_behind(small_db, tmp_path, monkeypatch, fails):
+    from matplotlib.figure import Figure
+
+    if fails == "drawing":
+
+        def broken(*args, **kwargs):
+            raise ValueError("cannot draw")
+
+        monkeypatch.setattr(plots, "family_figures", broken)
+    else:
+        real = Figure.savefig
+
+        def full_disk(fig, path, *args, **kwargs):
+            calls.append(path)
+            if len(calls) == 3:
+                raise OSError(28, "No space left on device")
+            return real(fig, path, *args, **kwargs)
+
+        monkeypatch.setattr(Figure, "savefig", full_disk)
+    kept = tmp_path / "kept"
+    kept.mkdir()
+    (kept / "mine.txt").write_text("mine")
+    for out in (tmp_path / "new" / "figs", kept):
+        calls = []
+        with ResultStore(small_db, readonly=True) as store:
+            with pytest.raises((ValueError, OSError)):
+                plots.write_figures(store, results.load_folds(store), out)
+    # the folders it made are gone; a folder that was there keeps only what it held
+    assert not (tmp_path / "new").exists()
+    assert [p.name for p in kept.iterdir()] == ["mine.txt"]

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import shutil
 import subprocess
 import sys
 import time
 
 from click.testing import CliRunner
 
+from prunebench import lockfile
 from prunebench.cli import main
 from prunebench.progress import progress_report
 
@@ -55,3 +57,28 @@ def test_progress_reads_while_conduct_writes(tmp_path):
     assert (final["done"], final["pending"]) == (24, 0) and final["rate_per_minute"] > 0
     text = CliRunner().invoke(main, ["progress", "--db", str(db)]).output
     assert "24 done, 0 failed, 0 pending of 24 trials" in text and "trials/min" in text
+
+
+def test_watch_goes_on_while_a_conduct_holds_the_database(search_db, tmp_path, monkeypatch):
+    # a search records its trials as it reaches them, so between two batches none is
+    # pending: --watch ends only when no conduct writes to the database any more
+    db = tmp_path / "search.sqlite"
+    shutil.copy(search_db, db)
+    handle, _ = lockfile.acquire(lockfile.lock_path(db))
+    during = progress_report(db)
+    assert during["pending"] == 0 and during["writing"] and during["search"]
+    assert during["eta"] == "-"  # how many trials remain is the search's to decide
+    ticks = []
+
+    def sleep(seconds):
+        ticks.append(seconds)
+        if len(ticks) == 2:
+            lockfile.release(handle, lockfile.lock_path(db))  # the conduct ends
+
+    monkeypatch.setattr(time, "sleep", sleep)
+    result = CliRunner().invoke(main, ["progress", str(db), "--watch", "2"])
+    assert result.exit_code == 0, result.output
+    assert ticks == [2, 2] and result.output.count("study 'search-fixture'") == 3
+    assert result.output.count("a search: trials are recorded as") == 2
+    after = progress_report(db)
+    assert not after["writing"] and after["eta"] == "0m00s"

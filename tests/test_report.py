@@ -21,6 +21,7 @@ from prunebench.report import (
     report_inputs,
     study_levels,
 )
+from prunebench.results import load_folds
 from prunebench.snippets import CAUTION, CAUTION_OWN_DATA, long_label
 from prunebench.store import ResultStore
 from prunebench.vocabulary import Configuration
@@ -229,6 +230,23 @@ def test_study_levels_take_a_familys_own_table(mixed_folds):
     assert levels["classification"]["criterion"] == ["entropy", "gini"]
     assert levels["regression"]["criterion"] == ["squared_error"]
     assert levels["regression"]["max_depth"] == [3, "none"]
+
+
+def test_report_of_a_search(search_db, tmp_path):
+    # a search's configurations do not cross every level: the report is written, its
+    # factor levels the smallest first (as the effects command takes them)
+    with ResultStore(search_db, readonly=True) as store:
+        inputs = report_inputs(store)
+        folds = load_folds(store)
+    levels = inputs["levels"]["classification"]
+    assert levels["min_samples_leaf"] == sorted(folds["min_samples_leaf"].unique().tolist())
+    assert levels["max_depth"] == [2, 4, None]
+    out = tmp_path / "search.html"
+    result = CliRunner().invoke(main, ["report", "--db", str(search_db), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    page = _parse(out.read_text(encoding="utf-8"))
+    assert not page.errors
+    assert "factor_heatmaps" in inputs["figures"]["classification"]
 
 
 def test_caution_worded_for_the_teams_own_data():

@@ -90,14 +90,7 @@ def test_search_finds_the_depth_two_tree(tmp_path):
 
 
 def test_early_stopping_is_reported_as_such(tmp_path):
-    names = _data(tmp_path, seeds=(0, 1, 2, 3))
-    datasets = ", ".join(f'{{ manifest = "and.toml", name = "{n}" }}' for n in names)
-    path = tmp_path / "stop.toml"
-    path.write_text(
-        f'name = "stop-unit"\nseed = 3\ndatasets = [{datasets}]\n[outer]\nrepeats = 1\nfolds = 3\n'
-        '[search]\nsampler = "random"\nconfigurations = 12\n[search.space]\nmax_depth = [1, 2]\n'
-        "inner_folds = [3]\n"
-    )
+    path = _stop_study(tmp_path)
     result = CliRunner().invoke(main, ["conduct", str(path)])
     assert result.exit_code == 0, result.output
     assert "stopped early" in result.output
@@ -106,6 +99,71 @@ def test_early_stopping_is_reported_as_such(tmp_path):
     )
     pruned = [t for t in storage.trials if t.state == optuna.trial.TrialState.PRUNED]
     assert pruned and all(t.params["max_depth"] == 1 for t in pruned)
+
+
+def _stop_study(folder):
+    """A random search on four sets where early stopping ends the depth-1 configurations."""
+    names = _data(folder, seeds=(0, 1, 2, 3))
+    datasets = ", ".join(f'{{ manifest = "and.toml", name = "{n}" }}' for n in names)
+    path = folder / "stop.toml"
+    path.write_text(
+        f'name = "stop-unit"\nseed = 3\ndatasets = [{datasets}]\n[outer]\nrepeats = 1\nfolds = 3\n'
+        '[search]\nsampler = "random"\nconfigurations = 12\n[search.space]\nmax_depth = [1, 2]\n'
+        "inner_folds = [3]\n"
+    )
+    return path
+
+
+def test_configurations_stopped_early_leave_no_trial_pending(tmp_path):
+    path = _stop_study(tmp_path)
+    db = tmp_path / "stop.sqlite"
+    first = CliRunner().invoke(main, ["conduct", str(path)])
+    assert first.exit_code == 0, first.output
+    assert "stopped early" in first.output and ", 0 failed;" in first.output
+    conn = sqlite3.connect(db)
+    statuses = dict(conn.execute("SELECT status, COUNT(*) FROM trials GROUP BY status"))
+    conn.close()
+    # the data sets a stopped configuration did not reach were never recorded
+    done = statuses.pop("done")
+    assert statuses == {}
+    # on a fresh database nothing was finished before this run
+    assert f"{done} trials done, 0 failed, 0 already finished, of {done};" in first.output
+    progress = CliRunner().invoke(main, ["progress", str(db), "--watch", "1"])
+    assert progress.exit_code == 0 and progress.output.count("study 'stop-unit'") == 1
+    assert f"{done} done, 0 failed, 0 pending of {done} trials" in progress.output
+    assert "ETA 0m00s" in progress.output
+    advice = CliRunner().invoke(main, ["recommend", "--db", str(db)])
+    assert advice.exit_code == 0, advice.output
+    assert "not complete" not in advice.output
+    again = CliRunner().invoke(main, ["conduct", str(path)])
+    assert again.exit_code == 0, again.output
+    assert f"0 trials done, 0 failed, {done} already finished, of {done};" in again.output
+
+
+def test_an_interrupted_configuration_is_resumed_and_not_counted_as_failed(tmp_path):
+    # what a kill leaves: Optuna's record of the running configuration, and its trials
+    # pending in the results database
+    from prunebench.search import _complete_levels, _suggest
+    from prunebench.store import ResultStore
+
+    study = load_study(_study(tmp_path, configurations=4))
+    db = tmp_path / "r.sqlite"
+    storage = f"sqlite:///{search_storage_path(db)}"
+    running = optuna.create_study(study_name=study.name, storage=storage).ask()
+    levels = _complete_levels(study, _suggest(running, study.search.space))
+    stale = [study.trial_group(key, levels).trials[0] for key in study.datasets]
+    with ResultStore(db, lock=True) as store:
+        store.register_study(study)
+        store.add_trials(study, stale)
+    summary = conduct(study, db, progress=Progress(0, io.StringIO()))
+    assert (summary.search["configurations"], summary.search["failed"]) == (4, 0)
+    interrupted, resumed = optuna.load_study(study_name=study.name, storage=storage).trials[:2]
+    assert interrupted.state == optuna.trial.TrialState.FAIL
+    assert resumed.params == interrupted.params  # proposed again, first
+    conn = sqlite3.connect(db)
+    assert conn.execute("SELECT COUNT(*) FROM trials WHERE status != 'done'").fetchone()[0] == 0
+    assert summary.done == summary.total  # nothing was finished before this run
+    conn.close()
 
 
 def test_grid_sampler_covers_the_grid_once(tmp_path):
@@ -137,6 +195,8 @@ def test_search_resumes_after_kill_9_without_repeating_configurations(tmp_path):
     conn.close()
     result = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
     assert result.returncode == 0, result.stderr
+    # Optuna's record of the configuration the kill interrupted is no failed configuration
+    assert "of them stopped early, 0 failed;" in result.stdout
     conn = sqlite3.connect(db)
     after = dict(conn.execute("SELECT trial_id, finished FROM trials WHERE status = 'done'"))
     # nothing finished before the kill ran again

@@ -254,3 +254,20 @@ def test_an_old_database_is_read_without_the_shape_columns(tmp_path):
     assert "root_feature" not in folds and len(folds) > 0
 
 
+def test_remove_pending_keeps_finished_trials_and_the_growths_they_use(tmp_path):
+    study = parse_study(STUDY)
+    path = tmp_path / "r.sqlite"
+    with ResultStore(path) as store:
+        store.register_study(study)
+        done = study.groups()[0]
+        settings = EvaluationSettings(seed=study.seed, repeats=1, folds=3)
+        store.save_group(
+            evaluate_group(done, study.datasets["iris"], settings), done.trials, "t0", "t1"
+        )
+        assert store.remove_pending(study.study_id) == 4 - len(done.trials)
+        assert set(store.statuses(study.study_id).values()) == {"done"}
+    conn = sqlite3.connect(path)
+    used = {r[0] for r in conn.execute("SELECT growth_id FROM trials")}
+    assert {r[0] for r in conn.execute("SELECT growth_id FROM growths")} == used
+    assert conn.execute("PRAGMA foreign_key_check").fetchall() == []
+    conn.close()

@@ -113,3 +113,25 @@ def test_results_effects_use_the_study_files_reference_levels(small_db):
     assert set(table.loc[table["factor"] == "rule", "reference"]) == {"min"}
     inter = opened.effects(interactions=True)
     assert {"by", "by_level", "flagged"} <= set(inter.columns)
+
+
+def test_effects_of_a_search_take_the_smallest_level_seen_as_the_reference(tmp_path, search_db):
+    # a search lists no levels: a factor's reference is the smallest level its
+    # configurations have (no cap last); a grid search crosses them, so each is paired
+    study = tmp_path / "grid.toml"
+    study.write_text(
+        'name = "grid-effects"\nseed = 2\ndatasets = ["iris", "wine"]\n[outer]\nrepeats = 1\n'
+        'folds = 3\n[search]\nsampler = "grid"\nearly_stopping = false\n[search.space]\n'
+        'max_depth = ["none", 2]\nse = [1.0, 0.0]\ninner_folds = [3]\n'
+    )
+    db = tmp_path / "grid.sqlite"
+    assert CliRunner().invoke(main, ["conduct", str(study), "--db", str(db)]).exit_code == 0
+    table = open_results(db).effects()
+    references = dict(zip(table["factor"], table["reference"], strict=False))
+    assert references == {"pruning": "unpruned", "max_depth": 2, "rule": "0se"}
+    assert set(table.loc[table["factor"] == "max_depth", "level"].map(pd.isna)) == {True}
+    # a random search pairs no level with its reference: pruning's contrast alone
+    for database in (db, search_db):
+        result = CliRunner().invoke(main, ["effects", "--db", str(database)])
+        assert result.exit_code == 0, result.output
+        assert "pruned vs unpruned" in result.output
