@@ -13,6 +13,8 @@ start without them.
 
 from __future__ import annotations
 
+import sys
+
 import click
 
 from ._version import __version__
@@ -250,7 +252,8 @@ def conduct(study_file, database, workers, retry_failed, cluster) -> None:
 
     Finished trials are skipped, so running the same command again after a crash or
     a kill resumes the sweep. Adding levels or datasets to the study file adds trials;
-    changing its seed or outer scheme is refused.
+    changing its seed or outer scheme is refused. A trial that fails keeps its error
+    and the others go on; the command then exits with status 1.
     """
     from .execute import conduct as run_study
     from .results import conduct_table
@@ -262,6 +265,14 @@ def conduct(study_file, database, workers, retry_failed, cluster) -> None:
         study, database, workers=workers, retry_failed=retry_failed, cluster=cluster
     )
     click.echo(conduct_text(summary, conduct_table(summary.database, study.study_id)))
+    if summary.failed:  # stored, but a script chaining commands must hear of it
+        click.echo(
+            f"error: {summary.failed} of {summary.total} trials failed in this run; their "
+            "errors are in trials.error ('prunebench progress' shows the last ones), and "
+            "--retry-failed runs them again",
+            err=True,
+        )
+        sys.exit(1)
 
 
 @main.command()

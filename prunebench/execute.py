@@ -63,6 +63,8 @@ class ConductSummary:
     database : Path
     total, done, failed, skipped : int
         Trials in the study; finished by this run; failed in this run; already done.
+    failed_before : int
+        Trials that failed in an earlier run and were not run again (no ``retry_failed``).
     groups_run : int
     seconds : float
     write_seconds : float
@@ -76,6 +78,7 @@ class ConductSummary:
     done: int = 0
     failed: int = 0
     skipped: int = 0
+    failed_before: int = 0
     groups_run: int = 0
     seconds: float = 0.0
     write_seconds: float = 0.0
@@ -496,7 +499,12 @@ def _run(study, store, path, summary, workers, retry_failed, progress, on_group,
     groups = [g for g in study.groups() if any(statuses[t.trial_id] in wanted for t in g.trials)]
     summary.total = len(study.trials())
     todo = sum(len(g.trials) for g in groups)
-    summary.skipped = summary.total - todo
+    if not retry_failed:  # failures of earlier runs are neither run nor finished
+        run = {t.trial_id for g in groups for t in g.trials}
+        summary.failed_before = sum(
+            1 for t in study.trials() if statuses[t.trial_id] == "failed" and t.trial_id not in run
+        )
+    summary.skipped = summary.total - todo - summary.failed_before
     progress = progress or Progress(todo)
     progress.total = todo
     progress.note(note)

@@ -245,10 +245,15 @@ def conduct_text(summary, table) -> str:
     table : DataFrame
         From :func:`prunebench.results.conduct_table`.
     """
+    before = (
+        f", {summary.failed_before} failed before (not run again: --retry-failed)"
+        if summary.failed_before
+        else ""
+    )
     lines = [
         f"{counted(summary.done, 'trial')} done, {summary.failed} failed, "
-        f"{summary.skipped} already finished, of {summary.total}; {summary.seconds:.1f} s; "
-        f"results in {summary.database}"
+        f"{summary.skipped} already finished{before}, of {summary.total}; "
+        f"{summary.seconds:.1f} s; results in {summary.database}"
     ]
     lines += [f"  failed: {error}" for error in summary.errors[:5]]
     if summary.search is not None:

@@ -259,3 +259,30 @@ def test_recommend_estimator_carries_the_stored_studys_costs(mixed_db, tmp_path)
         assert params[name] == cls["config"][name]
     config = cls["config"]
     assert (params["max_depth"], params["cv"]) == (config["max_depth"], config["inner_folds"])
+
+
+def test_conduct_with_failed_trials_exits_1_and_a_rerun_counts_them_apart(tmp_path, monkeypatch):
+    from prunebench import runners
+
+    def broken(group, *args, **kwargs):
+        raise FloatingPointError("injected failure")
+
+    study_file = tmp_path / "f.toml"
+    study_file.write_text(
+        'name = "f"\nseed = 1\ndatasets = ["iris"]\n[outer]\nrepeats = 1\nfolds = 2\n'
+        '[factors]\ninner_folds = [2]\nrule = ["min", "1se"]\n'
+    )
+    db = tmp_path / "f.sqlite"
+    monkeypatch.setattr(runners, "evaluate_group", broken)
+    first = CliRunner().invoke(main, ["conduct", str(study_file), "--db", str(db)])
+    assert first.exit_code == 1, first.output
+    assert "0 trials done, 2 failed, 0 already finished, of 2;" in first.output
+    assert "error: 2 of 2 trials failed in this run" in first.output
+    # run again without --retry-failed: nothing fails now, and the earlier failures are not
+    # called "already finished"
+    again = CliRunner().invoke(main, ["conduct", str(study_file), "--db", str(db)])
+    assert again.exit_code == 0, again.output
+    assert (
+        "0 trials done, 0 failed, 0 already finished, 2 failed before (not run again: "
+        "--retry-failed), of 2;" in again.output
+    )
