@@ -42,7 +42,9 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
     A search records a configuration's trials only as it reaches them (see
     :mod:`prunebench.search`), so while it runs ``total`` is the trials so far and
     ``pending`` at most a batch; how many remain depends on the sampler and on early
-    stopping, so its ETA is unknown (``None``) until it has ended.
+    stopping, so its ETA is unknown (``None``) until it has ended.  Pending trials
+    while no ``conduct`` holds the database (it was stopped or killed) have no ETA
+    either: nothing is running them.
     """
     with ResultStore(path, readonly=True) as store:
         chosen = resolve_study(store, study)
@@ -74,8 +76,8 @@ def progress_report(path: str | Path, study: str | None = None, last_errors: int
             rate = (done + failed) / span * 60
             eta = pending / (rate / 60) if pending else 0.0
     search = "search" in tomllib.loads(chosen["study_text"])
-    if search and writing:
-        eta = None
+    if (search and writing) or (pending and not writing):
+        eta = None  # a search's end is unknown; trials nobody is running have no ETA
     return {
         "study": chosen["name"],
         "done": done,

@@ -284,6 +284,8 @@ def progress_text(report: dict) -> str:
     ]
     if report.get("search") and report.get("writing"):
         lines.append("  a search: trials are recorded as its configurations reach them")
+    if report["pending"] and report.get("writing") is False:
+        lines.append("  no conduct is running: run the same 'prunebench conduct' again to finish")
     lines += [f"  recent failure: {error}" for error in report["errors"]]
     return "\n".join(lines)
 

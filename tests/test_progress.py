@@ -82,3 +82,24 @@ def test_watch_goes_on_while_a_conduct_holds_the_database(search_db, tmp_path, m
     assert result.output.count("a search: trials are recorded as") == 2
     after = progress_report(db)
     assert not after["writing"] and after["eta"] == "0m00s"
+
+
+def test_pending_trials_with_no_conduct_running_have_no_eta(tmp_path):
+    # as a killed conduct leaves them: registered, pending, and nobody holding the lock
+    from prunebench.store import ResultStore
+    from prunebench.study import parse_study
+
+    db = tmp_path / "stopped.sqlite"
+    with ResultStore(db) as store:
+        store.register_study(parse_study(STUDY))
+    stopped = progress_report(db)
+    assert stopped["pending"] == 24 and not stopped["writing"] and stopped["eta"] == "-"
+    text = CliRunner().invoke(main, ["progress", str(db)]).output
+    assert "no conduct is running: run the same 'prunebench conduct' again" in text
+    handle, _ = lockfile.acquire(lockfile.lock_path(db))  # a conduct holds it again
+    try:
+        assert progress_report(db)["writing"]
+        text = CliRunner().invoke(main, ["progress", str(db)]).output
+        assert "no conduct is running" not in text
+    finally:
+        lockfile.release(handle, lockfile.lock_path(db))
