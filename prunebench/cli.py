@@ -348,12 +348,12 @@ def effects(database, study, metric, margin, alpha, as_json, as_csv, interaction
     """Each factor's effect on the primary metric and on tree size, across datasets.
 
     Per task family, factor and level against the reference level (the first listed in the
-    study file), and for pruning itself (pruned against the unpruned tree): the paired
-    per-fold contrast, per dataset its Nadeau-Bengio variance, across datasets a
-    random-effects mean (DerSimonian-Laird) with the Hartung-Knapp 95% interval and the 95%
-    prediction interval for a new dataset; tree size as a ratio of leaf counts. Verdict:
-    equivalent when the 90% interval lies inside the margin, else better or worse when the
-    Holm-adjusted p is below alpha, else undecided.
+    study file; in a search, the smallest level tried), and for pruning itself (pruned
+    against the unpruned tree): the paired per-fold contrast, per dataset its Nadeau-Bengio
+    variance, across datasets a random-effects mean (DerSimonian-Laird) with the
+    Hartung-Knapp 95% interval and the 95% prediction interval for a new dataset; tree size
+    as a ratio of leaf counts. Verdict: equivalent when the 90% interval lies inside the margin,
+    else better or worse when the Holm-adjusted p is below alpha, else undecided.
     """
     import json
 

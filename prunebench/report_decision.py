@@ -192,7 +192,8 @@ def _hoist_note(view: pd.DataFrame) -> tuple[pd.DataFrame, str]:
 def _factor_section(effects: pd.DataFrame, figures: dict) -> str:
     parts = [
         "<p>Each row compares one level of a factor with the reference level (the first "
-        "listed in the study file), on the pruned trees, averaged over the other factors; "
+        "listed in the study file; in a search, the smallest level tried), on the pruned "
+        "trees, averaged over the other factors; "
         "per data set paired over outer folds (Nadeau–Bengio variance), then combined across "
         "data sets by random effects (DerSimonian–Laird, Hartung–Knapp interval). Negative "
         "effects mean the level is better. The prediction interval is where the effect on a "
