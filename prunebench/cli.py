@@ -395,16 +395,11 @@ def recommend(database, study, metric, margin, alpha, as_json) -> None:
     """
     import json
 
-    from .results import resolve_study
-    from .snippets import recommendation_records, with_study
-    from .store import ResultStore
+    from .snippets import recommendation_records
     from .tables import open_results
     from .text_decision import recommend_text
 
     recs = open_results(database, study).recommendation(metric, margin, alpha)
-    # the stored study file: its costs for the estimator, and whose data it is for the caution
-    with ResultStore(database, readonly=True) as store:
-        recs = with_study(recs, resolve_study(store, study)["study_text"])
     if as_json:
         click.echo(json.dumps(recommendation_records(recs), indent=2))
     else:

@@ -18,7 +18,14 @@ import pandas as pd
 
 from .exceptions import QueryError, parameter_error
 from .query import fetch
-from .results import decision_settings, load_folds, seen_levels, study_levels, trial_counts
+from .results import (
+    decision_settings,
+    load_folds,
+    resolve_study,
+    seen_levels,
+    study_levels,
+    trial_counts,
+)
 from .store import ResultStore
 from .vocabulary import FAMILIES, factor_names, family_of
 
@@ -192,11 +199,15 @@ class Results:
         -------
         list of dict
             One per family of the study, as :func:`prunebench.recommend.recommend`
-            (``decided`` False with a ``reason`` where nothing could be chosen).
+            (``decided`` False with a ``reason`` where nothing could be chosen), with
+            the stored study's ``costs``, ``smoothing`` and ``own_data`` added
+            (:func:`prunebench.snippets.with_study`), as ``prunebench recommend`` shows.
         """
         from .recommend import recommend, undecided
+        from .snippets import with_study
 
         with self._store() as store:
+            study_text = resolve_study(store, self.study)["study_text"]
             settings = decision_settings(store, self.study, metric, margin, alpha)
             counts = trial_counts(store, self.study)
             try:
@@ -226,7 +237,8 @@ class Results:
                     )
                 )
         order = {f: i for i, f in enumerate(FAMILIES)}
-        return sorted(recs, key=lambda r: order[r["family"]])
+        # the stored study's costs and smoothing (for the estimator) and whose data it is
+        return with_study(sorted(recs, key=lambda r: order[r["family"]]), study_text)
 
 
 def open_results(path: str | Path, study: str | None = None) -> Results:

@@ -45,7 +45,10 @@ def test_open_results_round_trips_what_the_store_wrote(small_db):
         "no evidence either way",
     }
     assert results.ranking()[0]["family"] == "classification"
-    assert results.recommendation()[0]["config"]["criterion"] in ("gini", "entropy")
+    rec = results.recommendation()[0]
+    assert rec["config"]["criterion"] in ("gini", "entropy")
+    # the stored study is read as the command reads it: bundled data, so not the team's own
+    assert rec["own_data"] is False and "costs" in rec
 
 
 def test_export_writes_every_table(small_db, tmp_path):
