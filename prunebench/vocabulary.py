@@ -347,11 +347,6 @@ def _plain(value: object) -> object:
 _DEFAULT_LEVELS = {"select_by": ("error", "mse"), "class_weight": ("none",)}
 
 
-def _shown(factor: str, value: object) -> bool:
-    """Whether a label shows a level of ``select_by`` or ``class_weight`` (not a default)."""
-    return value not in (None, *_DEFAULT_LEVELS[factor])
-
-
 @dataclass(frozen=True)
 class Configuration:
     """One configuration: the level of every factor.
@@ -423,7 +418,7 @@ class Configuration:
         They do when the level is known and not the default (``error`` / ``mse``,
         ``none``), the levels every study had before these factors.
         """
-        return _shown(factor, getattr(self, factor))
+        return getattr(self, factor) not in (None, *_DEFAULT_LEVELS[factor])
 
     def label(self, named: bool = False) -> str:
         """A short label, e.g. ``"entr d=none l=5 k=10 1se err"``.

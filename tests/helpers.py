@@ -135,3 +135,16 @@ max_depth = ["none", 3]
 inner_folds = [3]
 rule = ["min", "1se", "0.5se"]
 """
+
+
+#: a pruned cost-risk configuration chosen by AUC (the snippet and decision-box tests)
+COST_CONFIG = {
+    "criterion": "gini",
+    "max_depth": None,
+    "min_samples_leaf": 1,
+    "inner_folds": 5,
+    "rule": "1se",
+    "prune_risk": "cost",
+    "select_by": "auc",
+    "class_weight": "none",
+}

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import html
 
+from helpers import COST_CONFIG
+
 from prunebench.report_decision import _decision_box
 from prunebench.snippets import estimator_block, with_study
 
@@ -14,16 +16,7 @@ smoothing = "laplace"
 [costs]
 loss = { positive = { negative = 10 }, negative = { positive = 1 } }
 """
-CONFIG = {
-    "criterion": "gini",
-    "max_depth": None,
-    "min_samples_leaf": 1,
-    "inner_folds": 5,
-    "rule": "1se",
-    "prune_risk": "cost",
-    "select_by": "auc",
-    "class_weight": "balanced",
-}
+CONFIG = {**COST_CONFIG, "class_weight": "balanced"}
 
 
 def test_the_decision_box_shows_the_estimator_with_the_studys_costs():

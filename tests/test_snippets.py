@@ -6,6 +6,7 @@ import json
 import tomllib
 
 import pytest
+from helpers import COST_CONFIG
 
 from prunebench import PrunedTreeClassifier, PrunedTreeRegressor
 from prunebench.snippets import (
@@ -172,16 +173,6 @@ priors = "equal"
 loss = { 1 = { 0 = 10 }, 0 = { 1 = 1 } }
 priors = "equal"
 """
-COST_CONFIG = {
-    "criterion": "gini",
-    "max_depth": None,
-    "min_samples_leaf": 1,
-    "inner_folds": 5,
-    "rule": "1se",
-    "prune_risk": "cost",
-    "select_by": "auc",
-    "class_weight": "none",
-}
 
 
 def _cost_rec(study_text: str, datasets: list[str]) -> dict:
